@@ -1,0 +1,43 @@
+package store_test
+
+import (
+	"context"
+	"testing"
+
+	"github.com/concord-labs/concord/store"
+	"github.com/concord-labs/concord/store/storetest"
+)
+
+func TestMigrationsUpDownUp(t *testing.T) {
+	ctx := context.Background()
+	db, err := storetest.Create(ctx, "migrate")
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { db.Drop(ctx) })
+
+	st, err := store.MigrationState(db.URL)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if st.Version != st.Latest || st.Dirty || st.Latest == 0 {
+		t.Fatalf("after up: %+v, want version = latest > 0, clean", st)
+	}
+	if err := store.MigrateDown(db.URL, 0); err != nil {
+		t.Fatal(err)
+	}
+	s := db.Open(t)
+	var tables int
+	if err := s.Pool().QueryRow(ctx, `SELECT count(*) FROM pg_tables WHERE schemaname = 'public' AND tablename <> 'schema_migrations'`).Scan(&tables); err != nil {
+		t.Fatal(err)
+	}
+	if tables != 0 {
+		t.Fatalf("after down: %d tables left", tables)
+	}
+	if err := store.MigrateUp(db.URL); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := s.CreateProject(ctx, store.Project{Slug: "after-up-again", Name: "x"}); err != nil {
+		t.Fatalf("schema unusable after up/down/up: %v", err)
+	}
+}

@@ -1,0 +1,116 @@
+// Package store holds all of Concord's SQL. It wraps a pgx connection pool;
+// every method takes a context first, writes its SQL out as literals, and owns
+// its transaction when it changes more than one row. It must not import web
+// or cmd. Missing rows come back as ErrNotFound and rule violations
+// (uniqueness, foreign keys, checks) as ErrConflict, so handlers can map them
+// to HTTP status codes.
+package store
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"strings"
+
+	"github.com/jackc/pgx/v5"
+	"github.com/jackc/pgx/v5/pgconn"
+	"github.com/jackc/pgx/v5/pgxpool"
+)
+
+var (
+	// ErrNotFound means the row asked for does not exist (or is not visible to the caller).
+	ErrNotFound = errors.New("not found")
+	// ErrConflict means the change breaks a rule the schema enforces.
+	ErrConflict = errors.New("conflict")
+)
+
+// ConflictError says which rule a change broke; errors.Is(err, ErrConflict) holds.
+type ConflictError struct {
+	Constraint string
+	Detail     string
+}
+
+func (e *ConflictError) Error() string {
+	if e.Detail != "" {
+		return "conflict: " + e.Constraint + ": " + e.Detail
+	}
+	return "conflict: " + e.Constraint
+}
+
+func (e *ConflictError) Is(target error) bool { return target == ErrConflict }
+
+// Store is Concord's database.
+type Store struct {
+	pool *pgxpool.Pool
+}
+
+// Open connects to the database at url and checks that it answers.
+func Open(ctx context.Context, url string) (*Store, error) {
+	cfg, err := pgxpool.ParseConfig(url)
+	if err != nil {
+		return nil, fmt.Errorf("parse database URL: %w", err)
+	}
+	pool, err := pgxpool.NewWithConfig(ctx, cfg)
+	if err != nil {
+		return nil, fmt.Errorf("connect to database: %w", err)
+	}
+	if err := pool.Ping(ctx); err != nil {
+		pool.Close()
+		return nil, fmt.Errorf("connect to database: %w", err)
+	}
+	return &Store{pool: pool}, nil
+}
+
+// New wraps an existing pool.
+func New(pool *pgxpool.Pool) *Store { return &Store{pool: pool} }
+
+// Pool exposes the pool for readiness checks and the engine's advisory locks.
+func (s *Store) Pool() *pgxpool.Pool { return s.pool }
+
+// Close closes the pool.
+func (s *Store) Close() { s.pool.Close() }
+
+// Ping checks that the database answers (for /readyz).
+func (s *Store) Ping(ctx context.Context) error { return s.pool.Ping(ctx) }
+
+// inTx runs fn in a transaction, committing when fn returns nil.
+func (s *Store) inTx(ctx context.Context, fn func(tx pgx.Tx) error) error {
+	tx, err := s.pool.Begin(ctx)
+	if err != nil {
+		return err
+	}
+	defer tx.Rollback(context.Background())
+	if err := fn(tx); err != nil {
+		return err
+	}
+	return tx.Commit(ctx)
+}
+
+// mapErr turns pgx's no-rows and constraint errors into ErrNotFound and
+// *ConflictError; other errors pass through.
+func mapErr(err error) error {
+	if err == nil {
+		return nil
+	}
+	if errors.Is(err, pgx.ErrNoRows) {
+		return ErrNotFound
+	}
+	var pgErr *pgconn.PgError
+	if errors.As(err, &pgErr) && len(pgErr.Code) == 5 && pgErr.Code[:2] == "23" {
+		name := pgErr.ConstraintName
+		if name == "" {
+			name = pgErr.Message
+		}
+		return &ConflictError{Constraint: name, Detail: pgErr.Detail}
+	}
+	return err
+}
+
+// prefixed qualifies a column list with a table alias: "id, login" -> "u.id, u.login".
+func prefixed(alias, columns string) string {
+	parts := strings.Split(columns, ",")
+	for i, p := range parts {
+		parts[i] = alias + "." + strings.TrimSpace(p)
+	}
+	return strings.Join(parts, ", ")
+}

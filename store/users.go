@@ -1,0 +1,112 @@
+package store
+
+import (
+	"context"
+	"fmt"
+	"time"
+)
+
+// Roles and statuses of users.
+const (
+	RoleLead     = "lead"
+	RoleLabeller = "labeller"
+
+	StatusActive  = "active"
+	StatusPaused  = "paused"
+	StatusBlocked = "blocked"
+)
+
+// User is a lead or a labeller.
+type User struct {
+	ID           int64
+	Login        string
+	DisplayName  string
+	Role         string
+	PasswordHash string
+	Status       string
+	CreatedAt    time.Time
+}
+
+const userColumns = `id, login, display_name, role, password_hash, status, created_at`
+
+func scanUser(row interface{ Scan(...any) error }) (User, error) {
+	var u User
+	err := row.Scan(&u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt)
+	return u, err
+}
+
+// CreateUser adds a user; the login must be unused (else ErrConflict).
+func (s *Store) CreateUser(ctx context.Context, u User) (User, error) {
+	if u.Status == "" {
+		u.Status = StatusActive
+	}
+	row := s.pool.QueryRow(ctx, `
+		INSERT INTO users (login, display_name, role, password_hash, status)
+		VALUES ($1, $2, $3, $4, $5)
+		RETURNING `+userColumns, u.Login, u.DisplayName, u.Role, u.PasswordHash, u.Status)
+	out, err := scanUser(row)
+	if err != nil {
+		return User{}, fmt.Errorf("create user %q: %w", u.Login, mapErr(err))
+	}
+	return out, nil
+}
+
+// UserByID returns one user.
+func (s *Store) UserByID(ctx context.Context, id int64) (User, error) {
+	u, err := scanUser(s.pool.QueryRow(ctx, `SELECT `+userColumns+` FROM users WHERE id = $1`, id))
+	if err != nil {
+		return User{}, fmt.Errorf("user %d: %w", id, mapErr(err))
+	}
+	return u, nil
+}
+
+// UserByLogin returns the user with this login.
+func (s *Store) UserByLogin(ctx context.Context, login string) (User, error) {
+	u, err := scanUser(s.pool.QueryRow(ctx, `SELECT `+userColumns+` FROM users WHERE login = $1`, login))
+	if err != nil {
+		return User{}, fmt.Errorf("user %q: %w", login, mapErr(err))
+	}
+	return u, nil
+}
+
+// SetPasswordHash replaces a user's password hash.
+func (s *Store) SetPasswordHash(ctx context.Context, id int64, hash string) error {
+	tag, err := s.pool.Exec(ctx, `UPDATE users SET password_hash = $2 WHERE id = $1`, id, hash)
+	if err != nil {
+		return fmt.Errorf("set password of user %d: %w", id, mapErr(err))
+	}
+	if tag.RowsAffected() == 0 {
+		return fmt.Errorf("set password of user %d: %w", id, ErrNotFound)
+	}
+	return nil
+}
+
+// SetUserStatus blocks or re-activates a user everywhere.
+func (s *Store) SetUserStatus(ctx context.Context, id int64, status string) error {
+	tag, err := s.pool.Exec(ctx, `UPDATE users SET status = $2 WHERE id = $1`, id, status)
+	if err != nil {
+		return fmt.Errorf("set status of user %d: %w", id, mapErr(err))
+	}
+	if tag.RowsAffected() == 0 {
+		return fmt.Errorf("set status of user %d: %w", id, ErrNotFound)
+	}
+	return nil
+}
+
+// ListUsers returns every user, leads first, by login.
+func (s *Store) ListUsers(ctx context.Context) ([]User, error) {
+	rows, err := s.pool.Query(ctx, `SELECT `+userColumns+` FROM users ORDER BY role, login`)
+	if err != nil {
+		return nil, fmt.Errorf("list users: %w", err)
+	}
+	defer rows.Close()
+	var out []User
+	for rows.Next() {
+		u, err := scanUser(rows)
+		if err != nil {
+			return nil, fmt.Errorf("list users: %w", err)
+		}
+		out = append(out, u)
+	}
+	return out, rows.Err()
+}
