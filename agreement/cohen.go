@@ -270,7 +270,7 @@ func PairwiseCohen(v *Votes, opt PairOptions) ([]PairKappa, error) {
 	if minShared <= 0 {
 		minShared = DefaultMinShared
 	}
-	byItem := votesByItem(v)
+	items := groupByItem(v)
 	ids := newPairIDs(v.NumLabellers)
 
 	// Pass 1 numbers the pairs and counts their shared items; pass 2 puts
@@ -285,7 +285,7 @@ func PairwiseCohen(v *Votes, opt PairOptions) ([]PairKappa, error) {
 	forEachPair := func(visit func(pair int32, a, b int32)) {
 		for it := 0; it < v.NumItems; it++ {
 			firstVotes = firstVotes[:0]
-			for _, vi := range byItem.votes[byItem.start[it]:byItem.start[it+1]] {
+			for _, vi := range items.order[items.start[it]:items.start[it+1]] {
 				l := v.Labeller[vi]
 				if seen[l] != int32(it) {
 					seen[l] = int32(it)
@@ -346,29 +346,6 @@ func PairwiseCohen(v *Votes, opt PairOptions) ([]PairKappa, error) {
 		return cmp.Or(cmp.Compare(x.A, y.A), cmp.Compare(x.B, y.B))
 	})
 	return out, nil
-}
-
-// itemVotes lists vote indices grouped by item: item i's votes are
-// votes[start[i]:start[i+1]], in their original order.
-type itemVotes struct {
-	start []int32
-	votes []int32
-}
-
-func votesByItem(v *Votes) itemVotes {
-	g := itemVotes{start: make([]int32, v.NumItems+1), votes: make([]int32, len(v.Item))}
-	for _, it := range v.Item {
-		g.start[it+1]++
-	}
-	for i := 1; i <= v.NumItems; i++ {
-		g.start[i] += g.start[i-1]
-	}
-	next := slices.Clone(g.start[:v.NumItems])
-	for vi, it := range v.Item {
-		g.votes[next[it]] = int32(vi)
-		next[it]++
-	}
-	return g
 }
 
 // pairIDs numbers labeller pairs in order of first sight. A dense L x L

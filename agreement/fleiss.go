@@ -25,12 +25,12 @@ func CountVotes(v *Votes) (*ItemCounts, error) {
 	if err := v.Validate(); err != nil {
 		return nil, fmt.Errorf("count votes: %w", err)
 	}
-	byItem := votesByItem(v)
+	items := groupByItem(v)
 	c := &ItemCounts{NumItems: v.NumItems, NumClasses: v.NumClasses, Start: make([]int32, v.NumItems+1)}
 	tally := make([]int32, v.NumClasses)
 	for i := 0; i < v.NumItems; i++ {
 		first := int32(len(c.Class))
-		for _, vi := range byItem.votes[byItem.start[i]:byItem.start[i+1]] {
+		for _, vi := range items.order[items.start[i]:items.start[i+1]] {
 			l := v.Label[vi]
 			if tally[l] == 0 {
 				c.Class = append(c.Class, l)
