@@ -20,19 +20,9 @@ type jsonLabel struct {
 // {"key", "name", "description", "children"}; name is always written,
 // description and children only when not empty.
 func (t Taxonomy) MarshalJSON() ([]byte, error) {
-	var build func(ids []int) []jsonLabel
-	build = func(ids []int) []jsonLabel {
-		if len(ids) == 0 {
-			return nil
-		}
-		out := make([]jsonLabel, len(ids))
-		for i, id := range ids {
-			n := &t.nodes[id]
-			out[i] = jsonLabel{Key: n.Key, Name: &n.Name, Description: n.Description, Children: build(n.Children)}
-		}
-		return out
-	}
-	roots := build(t.roots)
+	roots := mapTree(&t, t.roots, func(n *Node, children []jsonLabel) jsonLabel {
+		return jsonLabel{Key: n.Key, Name: &n.Name, Description: n.Description, Children: children}
+	})
 	if roots == nil {
 		roots = []jsonLabel{}
 	}

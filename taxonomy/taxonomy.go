@@ -113,19 +113,23 @@ func walkLabels[T any](b *builder, ls []T, split func(T) (entry, []T)) {
 
 // Labels returns the tree as nested labels, with Name always filled in.
 func (t *Taxonomy) Labels() []Label {
-	var build func(ids []int) []Label
-	build = func(ids []int) []Label {
-		if len(ids) == 0 {
-			return nil
-		}
-		out := make([]Label, len(ids))
-		for i, id := range ids {
-			n := &t.nodes[id]
-			out[i] = Label{Key: n.Key, Name: n.Name, Description: n.Description, Children: build(n.Children)}
-		}
-		return out
+	return mapTree(t, t.roots, func(n *Node, children []Label) Label {
+		return Label{Key: n.Key, Name: n.Name, Description: n.Description, Children: children}
+	})
+}
+
+// mapTree builds a nested form of the subtrees under ids, bottom up; it gives
+// nil for no ids so empty children vanish from JSON.
+func mapTree[T any](t *Taxonomy, ids []int, f func(n *Node, children []T) T) []T {
+	if len(ids) == 0 {
+		return nil
 	}
-	return build(t.roots)
+	out := make([]T, len(ids))
+	for i, id := range ids {
+		n := &t.nodes[id]
+		out[i] = f(n, mapTree(t, n.Children, f))
+	}
+	return out
 }
 
 // Equal reports whether t and u hold the same labels in the same tree shape
