@@ -41,6 +41,7 @@ type DawidSkeneOptions struct {
 type DawidSkeneResult struct {
 	Consensus
 	NumLabellers  int
+	LabellerVotes []int32 // votes per labeller, for weighting
 	Confusion     []float64
 	Prior         []float64
 	LogLikelihood float64
@@ -350,14 +351,13 @@ func (m *dsModel) fill(res *DawidSkeneResult) {
 	for item := 0; item < m.items; item++ {
 		res.Votes[item] = m.byItem.start[item+1] - m.byItem.start[item]
 		row := res.PosteriorOf(item)
-		best := 0
-		for t, p := range row {
-			if p > row[best] {
-				best = t
-			}
-		}
+		best := argmax(row)
 		res.Label[item] = int32(best)
 		res.Confidence[item] = row[best]
+	}
+	res.LabellerVotes = make([]int32, m.labellers)
+	for l := range res.LabellerVotes {
+		res.LabellerVotes[l] = m.lStart[l+1] - m.lStart[l]
 	}
 	res.Prior = make([]float64, k)
 	for t, lp := range m.logPrior {
