@@ -47,14 +47,13 @@ func (l Limits) ParseJSON(data []byte) (*Taxonomy, error) {
 	dec := json.NewDecoder(bytes.NewReader(data))
 	dec.DisallowUnknownFields()
 	var roots []jsonLabel
-	err := dec.Decode(&roots)
-	if err == nil {
-		if _, extra := dec.Token(); !errors.Is(extra, io.EOF) {
-			err = errors.New("unexpected data after the top-level array")
-		}
-	}
-	if err != nil {
+	if err := dec.Decode(&roots); err != nil {
 		return nil, ErrorList{jsonError(data, dec.InputOffset(), err)}
+	}
+	end := dec.InputOffset()
+	if _, err := dec.Token(); !errors.Is(err, io.EOF) {
+		end += int64(len(data[end:]) - len(bytes.TrimLeft(data[end:], " \t\r\n")))
+		return nil, ErrorList{jsonError(data, end, errors.New("unexpected data after the top-level array"))}
 	}
 	b := newBuilder(l, "")
 	walkLabels(b, roots, func(j jsonLabel) (entry, []jsonLabel) {
@@ -68,15 +67,15 @@ func (l Limits) ParseJSON(data []byte) (*Taxonomy, error) {
 }
 
 // jsonError turns a decoding error into a ParseError at the line and column
-// of the offending byte.
+// of the byte at offset, or of the offending byte the error itself names.
 func jsonError(data []byte, offset int64, err error) *ParseError {
 	var syn *json.SyntaxError
 	var typ *json.UnmarshalTypeError
 	switch {
 	case errors.As(err, &syn):
-		offset = syn.Offset
+		offset = syn.Offset - 1 // Offset counts the bytes read, the bad one included
 	case errors.As(err, &typ):
-		offset = typ.Offset
+		offset = typ.Offset - 1
 	}
 	offset = min(max(offset, 0), int64(len(data)))
 	before := data[:offset]
