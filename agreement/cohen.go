@@ -4,7 +4,9 @@ import (
 	"cmp"
 	"fmt"
 	"math"
+	"runtime"
 	"slices"
+	"sync"
 )
 
 // Contingency is a K x K table of two raters' joint labels: Counts[a*K+b]
@@ -152,8 +154,9 @@ func CohenKappa(t *Contingency, w Weights) (Kappa, error) {
 type cohenScratch struct {
 	k          int
 	w          []float64
-	row, col   []float64
+	row, col   []float64 // margins as shares
 	wrow, wcol []float64
+	rows, cols []int // classes with a nonzero row / column margin
 }
 
 func newCohenScratch(k int, w Weights) *cohenScratch {
@@ -167,33 +170,55 @@ func newCohenScratch(k int, w Weights) *cohenScratch {
 	return s
 }
 
+// kappa computes kappa for a full K x K table.
 func (s *cohenScratch) kappa(counts []float64) Kappa {
 	k := s.k
-	n := 0.0
 	clear(s.row)
 	clear(s.col)
 	for a := 0; a < k; a++ {
 		for b := 0; b < k; b++ {
-			x := counts[a*k+b]
-			s.row[a] += x
-			s.col[b] += x
-			n += x
+			s.row[a] += counts[a*k+b]
+			s.col[b] += counts[a*k+b]
 		}
+	}
+	s.rows, s.cols = s.rows[:0], s.cols[:0]
+	for c := 0; c < k; c++ {
+		if s.row[c] > 0 {
+			s.rows = append(s.rows, c)
+		}
+		if s.col[c] > 0 {
+			s.cols = append(s.cols, c)
+		}
+	}
+	return s.kappaActive(counts)
+}
+
+// kappaActive computes kappa once row/col hold the count margins and
+// rows/cols list the classes where they are nonzero. Every term of the
+// formulas for a class with a zero margin is zero (w only meets p_ab or
+// p_a. p_.b), so skipping them is exact, and a pair of labellers who use a
+// handful of a large taxonomy's classes costs that handful squared.
+func (s *cohenScratch) kappaActive(counts []float64) Kappa {
+	k := s.k
+	n := 0.0
+	for _, a := range s.rows {
+		n += s.row[a]
 	}
 	r := Kappa{N: n, Kappa: math.NaN(), SE: math.NaN(), SE0: math.NaN(), Observed: math.NaN(), Chance: math.NaN()}
 	if n == 0 {
 		return r
 	}
-	for a := 0; a < k; a++ {
+	for _, a := range s.rows {
 		s.row[a] /= n
-		s.col[a] /= n
+		s.wrow[a] = 0
+	}
+	for _, b := range s.cols {
+		s.col[b] /= n
+		s.wcol[b] = 0
 	}
 	po, pe := 0.0, 0.0
-	for a := 0; a < k; a++ {
-		s.wrow[a], s.wcol[a] = 0, 0
-	}
-	for a := 0; a < k; a++ {
-		for b := 0; b < k; b++ {
+	for _, a := range s.rows {
+		for _, b := range s.cols {
 			w := s.w[a*k+b]
 			po += w * counts[a*k+b] / n
 			pe += w * s.row[a] * s.col[b]
@@ -207,8 +232,8 @@ func (s *cohenScratch) kappa(counts []float64) Kappa {
 	}
 	kappa := (po - pe) / (1 - pe)
 	sum, sum0 := 0.0, 0.0
-	for a := 0; a < k; a++ {
-		for b := 0; b < k; b++ {
+	for _, a := range s.rows {
+		for _, b := range s.cols {
 			w, both := s.w[a*k+b], s.wrow[a]+s.wcol[b]
 			if p := counts[a*k+b] / n; p > 0 {
 				d := w - both*(1-kappa)
@@ -225,6 +250,36 @@ func (s *cohenScratch) kappa(counts []float64) Kappa {
 	r.SE0 = math.Sqrt(max(0, (sum0-pe*pe)/den))
 	r.OK = true
 	return r
+}
+
+// pairKappa fills the scratch table and margins from one pair's label run
+// (a, b, a, b, ...), computes kappa and clears what it touched.
+func (s *cohenScratch) pairKappa(run []int32, table []float64) Kappa {
+	k := s.k
+	s.rows, s.cols = s.rows[:0], s.cols[:0]
+	for j := 0; j < len(run); j += 2 {
+		a, b := int(run[j]), int(run[j+1])
+		if s.row[a] == 0 {
+			s.rows = append(s.rows, a)
+		}
+		if s.col[b] == 0 {
+			s.cols = append(s.cols, b)
+		}
+		s.row[a]++
+		s.col[b]++
+		table[a*k+b]++
+	}
+	kp := s.kappaActive(table)
+	for j := 0; j < len(run); j += 2 {
+		table[int(run[j])*k+int(run[j+1])] = 0
+	}
+	for _, a := range s.rows {
+		s.row[a] = 0
+	}
+	for _, b := range s.cols {
+		s.col[b] = 0
+	}
+	return kp
 }
 
 // DefaultMinShared is the number of shared items a pair of labellers needs
@@ -324,24 +379,31 @@ func PairwiseCohen(v *Votes, opt PairOptions) ([]PairKappa, error) {
 		fill[pair]++
 	})
 
-	scratch := newCohenScratch(k, opt.Weights)
-	table := make([]float64, k*k)
-	var out []PairKappa
+	var keep []int32
 	for p, n := range shared {
-		if int(n) < minShared {
-			continue
+		if int(n) >= minShared {
+			keep = append(keep, int32(p))
 		}
-		run := labels[2*start[p] : 2*start[p+1]]
-		for j := 0; j < len(run); j += 2 {
-			table[int(run[j])*k+int(run[j+1])]++
-		}
-		kp := scratch.kappa(table)
-		for j := 0; j < len(run); j += 2 {
-			table[int(run[j])*k+int(run[j+1])] = 0
-		}
-		a, b := ids.pair(int32(p))
-		out = append(out, PairKappa{A: a, B: b, Items: int(n), Kappa: kp.Kappa, SE: kp.SE, OK: kp.OK})
 	}
+	out := make([]PairKappa, len(keep))
+	// Each worker owns a contiguous block of pairs and writes only its own
+	// slots, so the result does not depend on scheduling.
+	workers := min(runtime.GOMAXPROCS(0), max(1, len(keep)/1024))
+	var wg sync.WaitGroup
+	for w := 0; w < workers; w++ {
+		lo, hi := w*len(keep)/workers, (w+1)*len(keep)/workers
+		wg.Go(func() {
+			scratch := newCohenScratch(k, opt.Weights)
+			table := make([]float64, k*k)
+			for i := lo; i < hi; i++ {
+				p := keep[i]
+				kp := scratch.pairKappa(labels[2*start[p]:2*start[p+1]], table)
+				a, b := ids.pair(p)
+				out[i] = PairKappa{A: a, B: b, Items: int(shared[p]), Kappa: kp.Kappa, SE: kp.SE, OK: kp.OK}
+			}
+		})
+	}
+	wg.Wait()
 	slices.SortFunc(out, func(x, y PairKappa) int {
 		return cmp.Or(cmp.Compare(x.A, y.A), cmp.Compare(x.B, y.B))
 	})
