@@ -7,20 +7,25 @@ import (
 	"testing"
 )
 
-// refDir is where the shared reference data lives (see its README.md);
-// CONCORD_REFERENCE overrides it. A missing file fails the test rather than
-// skipping it, so a green run always means the checks ran.
-func refDir() string {
-	if d := os.Getenv("CONCORD_REFERENCE"); d != "" {
-		return d
+// refPath finds a reference file: the repository's copy under
+// testdata/reference first, else the shared folder (override it with
+// CONCORD_REFERENCE). A missing file fails the test rather than skipping
+// it, so a green run always means the checks ran.
+func refPath(name string) string {
+	local := filepath.Join("..", "testdata", "reference", name)
+	if _, err := os.Stat(local); err == nil {
+		return local
 	}
-	return "/work/shared/reference"
+	if d := os.Getenv("CONCORD_REFERENCE"); d != "" {
+		return filepath.Join(d, name)
+	}
+	return filepath.Join("/work/shared/reference", name)
 }
 
 // refRows reads a reference CSV and drops its header row.
 func refRows(t testing.TB, name string) [][]string {
 	t.Helper()
-	f, err := os.Open(filepath.Join(refDir(), name))
+	f, err := os.Open(refPath(name))
 	if err != nil {
 		t.Fatalf("reference data: %v", err)
 	}
