@@ -1,7 +1,3 @@
-// Package agreement turns noisy, disagreeing votes into consensus labels and
-// measures how far the labellers agree. It is pure statistics: no I/O, no
-// database, and no imports of Concord's other packages. Callers convert
-// names to dense integer ids at the edges (see Builder) and pass flat slices.
 package agreement
 
 import "fmt"
