@@ -39,3 +39,27 @@ func BenchmarkPairwiseCohenQuadratic1M(b *testing.B) {
 		return err
 	})
 }
+
+// BenchmarkBootstrapFleiss1M draws the default 1000 resamples of the
+// 100,000 items; BenchmarkBootstrapAlpha1M the same for nominal alpha.
+func BenchmarkBootstrapFleiss1M(b *testing.B) {
+	benchRun(b, func(v *Votes) error {
+		c, err := CountVotes(v)
+		if err != nil {
+			return err
+		}
+		_, err = BootstrapFleiss(c, BootstrapOptions{Seed: 1})
+		return err
+	})
+}
+
+func BenchmarkBootstrapAlpha1M(b *testing.B) {
+	benchRun(b, func(v *Votes) error {
+		c, err := CountVotes(v)
+		if err != nil {
+			return err
+		}
+		_, err = BootstrapAlpha(c, AlphaOptions{Metric: Nominal}, BootstrapOptions{Seed: 1})
+		return err
+	})
+}
