@@ -160,46 +160,57 @@ func (p *lineParser) depth(at where, indent int) (int, bool) {
 func (p *lineParser) fields(at where, indent int, body string) (entry, bool) {
 	errs := &p.b.errs
 	col := func(i int) int { return indent + utf8.RuneCountInString(body[:i]) + 1 }
-	var texts []string
-	var cols []int
-	var buf []byte
-	start := 0
+	var texts [3]string
+	var cols [3]int
+	nf, start, escaped := 0, 0, false
 	flush := func(end int) {
-		seg := body[start:end]
-		lead := len(seg) - len(strings.TrimLeftFunc(seg, unicode.IsSpace))
-		texts = append(texts, strings.TrimSpace(string(buf)))
-		cols = append(cols, col(start+lead))
-		buf = buf[:0]
+		raw := body[start:end]
+		lead := len(raw) - len(strings.TrimLeftFunc(raw, unicode.IsSpace))
+		if escaped {
+			raw = unescape(raw)
+		}
+		texts[nf], cols[nf] = strings.TrimSpace(raw), col(start+lead)
+		nf++
 	}
 	for i := 0; i < len(body); i++ {
-		switch c := body[i]; c {
+		switch body[i] {
 		case '\\':
 			if i+1 < len(body) && (body[i+1] == '\\' || body[i+1] == '|') {
-				buf = append(buf, body[i+1])
+				escaped = true
 				i++
 				continue
 			}
 			errs.add(at, col(i), FieldLine, `unknown escape; inside text write \| for '|' and \\ for '\'`)
 			return entry{}, false
 		case '|':
-			if len(texts) == 2 {
+			if nf == 2 {
 				errs.add(at, col(i), FieldLine, `too many '|' separators; a line is key | name | description, and \| writes a '|' inside text`)
 				return entry{}, false
 			}
 			flush(i)
-			start = i + 1
-		default:
-			buf = append(buf, c)
+			start, escaped = i+1, false
 		}
 	}
 	flush(len(body))
 	e := entry{key: texts[0], at: at}
 	e.at.keyCol = cols[0]
-	if len(texts) > 1 {
+	if nf > 1 {
 		e.name, e.nameSet, e.at.nameCol = texts[1], true, cols[1]
 	}
-	if len(texts) > 2 {
+	if nf > 2 {
 		e.desc, e.at.descCol = texts[2], cols[2]
 	}
 	return e, true
+}
+
+// unescape undoes \| and \\ in s, whose escapes are known to be valid.
+func unescape(s string) string {
+	b := make([]byte, 0, len(s))
+	for i := 0; i < len(s); i++ {
+		if s[i] == '\\' {
+			i++
+		}
+		b = append(b, s[i])
+	}
+	return string(b)
 }

@@ -157,7 +157,8 @@ type builder struct {
 	errs    collector
 	t       *Taxonomy
 	stack   []int // stack[d] is the latest node at depth d
-	first   map[string]where
+	first   map[string]int // key to its first place in places
+	places  []where        // where each valid key was first seen
 	stopped bool
 }
 
@@ -166,8 +167,8 @@ func newBuilder(l Limits, file string) *builder {
 	return &builder{
 		lim:   l,
 		errs:  collector{file: file, max: l.MaxErrors},
-		t:     &Taxonomy{index: map[string]int{}},
-		first: map[string]where{},
+		t:     &Taxonomy{},
+		first: map[string]int{},
 	}
 }
 
@@ -208,7 +209,6 @@ func (b *builder) add(e entry) bool {
 		b.t.nodes[p].Children = append(b.t.nodes[p].Children, id)
 	}
 	b.t.nodes = append(b.t.nodes, n)
-	b.t.index[e.key] = id
 	b.stack = append(b.stack[:depth], id)
 	return true
 }
@@ -223,9 +223,10 @@ func (b *builder) check(e entry) bool {
 	if col, msg := checkKey(e.key); msg != "" {
 		fail(e.at.keyCol+col, FieldKey, "%s", msg)
 	} else if first, dup := b.first[e.key]; dup {
-		fail(e.at.keyCol, FieldKey, "duplicate key %q (first on %s)", e.key, first.describe())
+		fail(e.at.keyCol, FieldKey, "duplicate key %q (first on %s)", e.key, b.places[first].describe())
 	} else {
-		b.first[e.key] = e.at
+		b.first[e.key] = len(b.places)
+		b.places = append(b.places, e.at)
 	}
 	if e.nameSet && e.name == "" {
 		fail(e.at.nameCol, FieldName, "empty name; leave out the '|' to use the key as the name")
@@ -258,6 +259,9 @@ func (b *builder) finish() (*Taxonomy, error) {
 		return nil, err
 	}
 	t := b.t
+	// Without errors every valid key became a node, in order, so the first
+	// places are the node indices.
+	t.index = b.first
 	t.end = make([]int, len(t.nodes))
 	for i := len(t.nodes) - 1; i >= 0; i-- {
 		t.end[i] = i + 1
