@@ -108,12 +108,18 @@ func TestAlphaProperties(t *testing.T) {
 	after := mustAlpha(t, &relabelled, AlphaOptions{Metric: Nominal})
 	near(t, "relabelled nominal alpha", after.Alpha, before.Alpha, 1e-12)
 
-	// Nominal alpha and Fleiss' kappa differ only by the small-sample
-	// factor (n-1)/n in D_e (common practice): check that link too.
+}
+
+// With the same number of votes on every item, nominal alpha's D_o is
+// 1 - PBar and its D_e is n/(n-1) PBarE's complement, so alpha = 1 -
+// (n-1)/n (1 - kappa) exactly (algebra of the two definitions; it links
+// the Fleiss 1971 checks to the alpha code).
+func TestAlphaNominalMatchesFleissOnEqualVotes(t *testing.T) {
+	v, _ := longVotes(t, "fleiss1971_diagnoses_long.csv", "subject", "rater", "category", 5)
+	a := mustAlpha(t, v, AlphaOptions{Metric: Nominal})
 	f, _ := Fleiss(v)
-	if math.Abs(f.Kappa-before.Alpha) > 0.02 {
-		t.Errorf("Fleiss %v and nominal alpha %v too far apart", f.Kappa, before.Alpha)
-	}
+	n := float64(a.Pairable)
+	near(t, "alpha from kappa", a.Alpha, 1-(n-1)/n*(1-f.Kappa), 1e-12)
 }
 
 func TestAlphaUndefinedAndErrors(t *testing.T) {
