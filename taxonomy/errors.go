@@ -20,7 +20,7 @@ const (
 type ParseError struct {
 	File   string // file name, when known (ParseFile sets it)
 	Line   int    // 1-based line in the text file; 0 when not from text
-	Column int    // 1-based column in characters; 0 when the whole line is meant
+	Column int    // 1-based column, in characters for text and bytes for JSON; 0 when the whole line is meant
 	Label  string // position in a JSON document, e.g. "[0].children[2]"; "" for text
 	Field  string // one of the Field* constants
 	Msg    string

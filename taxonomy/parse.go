@@ -180,7 +180,7 @@ func (p *lineParser) fields(at where, indent int, body string) (entry, bool) {
 				i++
 				continue
 			}
-			errs.add(at, col(i), FieldLine, `unknown escape; inside text write \| for '|' and \\ for '\'`)
+			errs.add(at, col(i), [...]string{FieldKey, FieldName, FieldDescription}[nf], `unknown escape; inside text write \| for '|' and \\ for '\'`)
 			return entry{}, false
 		case '|':
 			if nf == 2 {

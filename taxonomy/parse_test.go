@@ -171,7 +171,7 @@ func TestParseErrors(t *testing.T) {
 		{
 			name:  "unknown escape",
 			in:    `glass | Gl\ass`,
-			field: FieldLine,
+			field: FieldName,
 			want:  []string{`line 1, column 11: unknown escape; inside text write \| for '|' and \\ for '\'`},
 		},
 		{
