@@ -156,7 +156,7 @@ type builder struct {
 	lim     Limits
 	errs    collector
 	t       *Taxonomy
-	stack   []int // stack[d] is the latest node at depth d
+	stack   []int          // stack[d] is the latest node at depth d
 	first   map[string]int // key to its first place in places
 	places  []where        // where each valid key was first seen
 	stopped bool
