@@ -1,0 +1,2 @@
+ALTER TABLE releases DROP COLUMN IF EXISTS formats;
+ALTER TABLE items DROP COLUMN IF EXISTS thumb_key;
