@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"time"
+
+	"github.com/jackc/pgx/v5"
 )
 
 // VotePolicy says how many votes an item gets and when it is done.
@@ -67,6 +69,14 @@ func scanProject(row interface{ Scan(...any) error }) (Project, error) {
 
 // CreateProject adds a project; zero policy or pay fields take the defaults.
 func (s *Store) CreateProject(ctx context.Context, p Project) (Project, error) {
+	out, err := createProject(ctx, s.pool, p)
+	if err != nil {
+		return Project{}, fmt.Errorf("create project %q: %w", p.Slug, mapErr(err))
+	}
+	return out, nil
+}
+
+func createProject(ctx context.Context, q querier, p Project) (Project, error) {
 	if p.Policy == (VotePolicy{}) {
 		p.Policy = DefaultPolicy()
 	}
@@ -76,7 +86,7 @@ func (s *Store) CreateProject(ctx context.Context, p Project) (Project, error) {
 	if p.ReleaseSeed == 0 {
 		p.ReleaseSeed = 1
 	}
-	row := s.pool.QueryRow(ctx, `
+	return scanProject(q.QueryRow(ctx, `
 		INSERT INTO projects (slug, name, description, min_votes, max_votes, confidence_target, gold_rate,
 			claim_seconds, accuracy_floor, gold_feedback, pay_model, pay_rate, currency, budget_cap,
 			min_hourly_pay, release_seed)
@@ -84,12 +94,7 @@ func (s *Store) CreateProject(ctx context.Context, p Project) (Project, error) {
 		RETURNING `+projectColumns,
 		p.Slug, p.Name, p.Description, p.Policy.MinVotes, p.Policy.MaxVotes, p.Policy.ConfidenceTarget,
 		p.Policy.GoldRate, p.Policy.ClaimSeconds, p.Policy.AccuracyFloor, p.Policy.GoldFeedback,
-		p.Pay.Model, p.Pay.Rate, p.Pay.Currency, p.Pay.BudgetCap, p.Pay.MinHourlyPay, p.ReleaseSeed)
-	out, err := scanProject(row)
-	if err != nil {
-		return Project{}, fmt.Errorf("create project %q: %w", p.Slug, mapErr(err))
-	}
-	return out, nil
+		p.Pay.Model, p.Pay.Rate, p.Pay.Currency, p.Pay.BudgetCap, p.Pay.MinHourlyPay, p.ReleaseSeed))
 }
 
 // UpdateProject saves name, description, vote policy and pay model.
@@ -155,4 +160,24 @@ func (s *Store) queryProjects(ctx context.Context, sql string, args ...any) ([]P
 		out = append(out, p)
 	}
 	return out, rows.Err()
+}
+
+// CreateProjectWithTaxonomy creates a project and its taxonomy in one
+// transaction, so a bad taxonomy leaves no project behind.
+func (s *Store) CreateProjectWithTaxonomy(ctx context.Context, p Project, labels []LabelInput) (Project, error) {
+	var out Project
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var err error
+		if out, err = createProject(ctx, tx, p); err != nil {
+			return err
+		}
+		if len(labels) > 0 {
+			return replaceTaxonomy(ctx, tx, out.ID, labels)
+		}
+		return nil
+	})
+	if err != nil {
+		return Project{}, fmt.Errorf("create project %q: %w", p.Slug, mapErr(err))
+	}
+	return out, nil
 }

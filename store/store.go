@@ -73,6 +73,13 @@ func (s *Store) Close() { s.pool.Close() }
 // Ping checks that the database answers (for /readyz).
 func (s *Store) Ping(ctx context.Context) error { return s.pool.Ping(ctx) }
 
+// querier is what a pool and a transaction have in common.
+type querier interface {
+	Exec(ctx context.Context, sql string, args ...any) (pgconn.CommandTag, error)
+	Query(ctx context.Context, sql string, args ...any) (pgx.Rows, error)
+	QueryRow(ctx context.Context, sql string, args ...any) pgx.Row
+}
+
 // inTx runs fn in a transaction, committing when fn returns nil.
 func (s *Store) inTx(ctx context.Context, fn func(tx pgx.Tx) error) error {
 	tx, err := s.pool.Begin(ctx)

@@ -1,0 +1,68 @@
+package web
+
+import (
+	"net/http"
+	"time"
+
+	"github.com/go-chi/chi/v5"
+	"github.com/go-chi/chi/v5/middleware"
+)
+
+// Handler returns the whole HTTP surface. Every route is listed here.
+func (s *Server) Handler() http.Handler {
+	r := chi.NewRouter()
+	r.Use(middleware.RealIP)
+	r.Use(middleware.Recoverer)
+	r.Use(s.logRequests)
+	r.Use(securityHeaders)
+
+	r.Get("/healthz", s.healthz)
+	r.Get("/readyz", s.readyz)
+	r.Get("/static/{version}/*", s.assets.serve)
+
+	r.Group(func(r chi.Router) {
+		r.Use(s.loadUser)
+		r.Get("/login", s.handle(s.showLogin))
+		r.Post("/login", s.handle(s.login))
+		r.Post("/logout", s.handle(s.logout))
+
+		r.Group(func(r chi.Router) {
+			r.Use(s.requireLogin)
+			r.Get("/", s.handle(s.showHome))
+
+			// Labelling routes (labellers and leads who are members).
+			// LABELLING ROUTES BEGIN
+			// LABELLING ROUTES END
+
+			// Lead routes: everything under /lead is refused to labellers with 403.
+			r.Route("/lead", func(r chi.Router) {
+				r.Use(s.requireLead)
+				// LEAD ROUTES BEGIN
+				// LEAD ROUTES END
+			})
+		})
+	})
+	// Cross-origin POSTs are refused (403) before any handler runs.
+	return http.NewCrossOriginProtection().Handler(r)
+}
+
+func (s *Server) logRequests(next http.Handler) http.Handler {
+	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		start := time.Now()
+		ww := middleware.NewWrapResponseWriter(w, r.ProtoMajor)
+		next.ServeHTTP(ww, r)
+		s.log.Debug("request", "method", r.Method, "path", r.URL.Path, "status", ww.Status(),
+			"ms", float64(time.Since(start).Microseconds())/1000)
+	})
+}
+
+func securityHeaders(next http.Handler) http.Handler {
+	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		h := w.Header()
+		h.Set("X-Content-Type-Options", "nosniff")
+		h.Set("X-Frame-Options", "DENY")
+		h.Set("Referrer-Policy", "same-origin")
+		h.Set("Content-Security-Policy", "default-src 'self'; img-src 'self' data:; style-src 'self'; script-src 'self'; frame-ancestors 'none'")
+		next.ServeHTTP(w, r)
+	})
+}
