@@ -55,3 +55,22 @@ func FuzzParse(f *testing.F) {
 		}
 	})
 }
+
+// FuzzParseJSON checks that whatever the JSON reader accepts can be written
+// as text and read back unchanged, so the two forms accept the same trees.
+func FuzzParseJSON(f *testing.F) {
+	for _, s := range []string{
+		`[{"key":"material","name":"Material","children":[{"key":"glass","description":"jars | bottles"}]}]`,
+		`[{"key":"a","name":" a"}]`, `[{"key":"a","name":"x\\y"}]`, `[{"key":"a","description":"\u2028"}]`,
+		`[{"key":"a","children":[{"key":"b","children":[{"key":"c"}]}]},{"key":"d"}]`, `[]`, `null`,
+	} {
+		f.Add(s)
+	}
+	f.Fuzz(func(t *testing.T, in string) {
+		tx, err := DefaultLimits().ParseJSON([]byte(in))
+		if err != nil {
+			return
+		}
+		checkRoundTrip(t, tx)
+	})
+}
