@@ -1,0 +1,81 @@
+package main
+
+import (
+	"bytes"
+	"context"
+	"errors"
+	"os"
+	"strings"
+	"testing"
+
+	"github.com/concord-labs/concord/store/storetest"
+)
+
+// testDB is this package's throwaway database; commands reach it through
+// DATABASE_URL in the env that runConcord builds.
+var testDB *storetest.DB
+
+func TestMain(m *testing.M) { os.Exit(storetest.Main(m, &testDB)) }
+
+// cmdResult is what one run of the binary printed and returned.
+type cmdResult struct {
+	stdout, stderr string
+	err            error
+}
+
+// runConcord runs the concord command line in-process against the test
+// database. vars are extra environment variables (KEY=VALUE).
+func runConcord(t testing.TB, stdin string, args []string, vars ...string) cmdResult {
+	t.Helper()
+	envVars := map[string]string{"DATABASE_URL": testDB.URL}
+	for _, kv := range vars {
+		k, v, _ := strings.Cut(kv, "=")
+		envVars[k] = v
+	}
+	var out, errOut bytes.Buffer
+	e := &env{stdout: &out, stderr: &errOut, stdin: strings.NewReader(stdin), getenv: func(k string) string { return envVars[k] }}
+	err := run(context.Background(), e, args)
+	return cmdResult{out.String(), errOut.String(), err}
+}
+
+func TestHelpAndVersion(t *testing.T) {
+	r := runConcord(t, "", []string{"--help"})
+	if r.err != nil {
+		t.Fatal(r.err)
+	}
+	for _, c := range commands() {
+		if !strings.Contains(r.stdout, "  "+c.name+" ") {
+			t.Errorf("--help does not list %q:\n%s", c.name, r.stdout)
+		}
+	}
+	r = runConcord(t, "", []string{"version"})
+	if r.err != nil || r.stdout != "concord "+version+"\n" {
+		t.Errorf("version: %q, %v", r.stdout, r.err)
+	}
+	r = runConcord(t, "", []string{"frobnicate"})
+	var ue usageError
+	if !errors.As(r.err, &ue) || !strings.Contains(r.err.Error(), `unknown command "frobnicate"`) {
+		t.Errorf("unknown command: %v", r.err)
+	}
+}
+
+func TestEnvironmentSetsFlags(t *testing.T) {
+	// CONCORD_MIN_VOTES fills --min-votes; a flag on the command line wins.
+	r := runConcord(t, "", []string{"project", "create", "--slug", "env-flags", "--name", "Env"}, "CONCORD_MIN_VOTES=4", "CONCORD_MAX_VOTES=9")
+	if r.err != nil {
+		t.Fatal(r.err)
+	}
+	r = runConcord(t, "", []string{"project", "create", "--slug", "env-flags-2", "--name", "Env", "--min-votes", "2"}, "CONCORD_MIN_VOTES=4")
+	if r.err != nil {
+		t.Fatal(r.err)
+	}
+	r = runConcord(t, "", []string{"project", "list"})
+	if !strings.Contains(r.stdout, "env-flags    Env   4-9") || !strings.Contains(r.stdout, "env-flags-2  Env   2-7") {
+		t.Errorf("project list:\n%s", r.stdout)
+	}
+	r = runConcord(t, "", []string{"project", "list"}, "CONCORD_MIN_VOTES=many")
+	var ue usageError
+	if !errors.As(r.err, &ue) || !strings.Contains(r.err.Error(), "CONCORD_MIN_VOTES") {
+		t.Errorf("bad env value: %v", r.err)
+	}
+}
