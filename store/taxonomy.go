@@ -143,24 +143,27 @@ func (s *Store) Taxonomy(ctx context.Context, projectID int64) (*taxonomy.Taxono
 		return nil, nil, fmt.Errorf("taxonomy of project %d: none imported yet: %w", projectID, ErrNotFound)
 	}
 	index := make(map[int64]int, len(labels))
-	nested := make([]taxonomy.Label, len(labels))
+	children := make([][]int, len(labels))
+	var rootIdx []int
 	for i, l := range labels {
 		index[l.ID] = i
-		nested[i] = taxonomy.Label{Key: l.Key, Name: l.Name, Description: l.Description}
-	}
-	// Attach children bottom-up: in pre-order every child comes after its parent.
-	var roots []taxonomy.Label
-	for i := len(labels) - 1; i >= 0; i-- {
-		if p := labels[i].ParentID; p != nil {
-			pi := index[*p]
-			nested[pi].Children = append([]taxonomy.Label{nested[i]}, nested[pi].Children...)
-		}
-	}
-	for i, l := range labels {
 		if l.ParentID == nil {
-			roots = append(roots, nested[i])
+			rootIdx = append(rootIdx, i)
+		} else {
+			pi := index[*l.ParentID] // pre-order: the parent is already indexed
+			children[pi] = append(children[pi], i)
 		}
 	}
+	var build func(idx []int) []taxonomy.Label
+	build = func(idx []int) []taxonomy.Label {
+		out := make([]taxonomy.Label, len(idx))
+		for k, i := range idx {
+			l := labels[i]
+			out[k] = taxonomy.Label{Key: l.Key, Name: l.Name, Description: l.Description, Children: build(children[i])}
+		}
+		return out
+	}
+	roots := build(rootIdx)
 	t, err := taxonomy.New(roots)
 	if err != nil {
 		return nil, nil, fmt.Errorf("taxonomy of project %d: %w", projectID, err)
