@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"image"
 	"image/color"
+	"image/gif"
 	"image/jpeg"
 	"image/png"
 	"math"
@@ -89,4 +90,13 @@ func decode(t testing.TB, b []byte) image.Image {
 		t.Fatal(err)
 	}
 	return img
+}
+
+func encodeGIF(t testing.TB, img image.Image) []byte {
+	t.Helper()
+	var b bytes.Buffer
+	if err := gif.Encode(&b, img, nil); err != nil {
+		t.Fatal(err)
+	}
+	return b.Bytes()
 }
