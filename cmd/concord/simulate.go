@@ -205,7 +205,7 @@ func simulate(ctx context.Context, opt simOptions) (*simReport, error) {
 		}
 		r.VotesPerItem = float64(r.Votes) / float64(r.Items)
 		r.Accuracy = float64(r.Correct) / float64(r.Items)
-		r.AccuracyLow, r.AccuracyHigh = wilson(r.Correct, r.Items, z95)
+		r.AccuracyLow, r.AccuracyHigh = agreement.WilsonInterval(r.Correct, r.Items, z95)
 		r.Cost = float64(r.Votes) * opt.rate
 		return r
 	}
@@ -348,22 +348,6 @@ func checkAgainstBaseline(ps []policyResult) simCheck {
 		}
 	}
 	return c
-}
-
-// wilson is the Wilson (1927) score interval for k successes in n trials:
-//
-//	(k + z²/2 ± z sqrt(k(n-k)/n + z²/4)) / (n + z²)
-//
-// Unlike the Wald interval it stays inside [0,1] and is not empty at 0 or n,
-// which matters for accuracies near 100%.
-func wilson(k, n int, z float64) (lo, hi float64) {
-	if n == 0 {
-		return 0, 1
-	}
-	fk, fn, z2 := float64(k), float64(n), z*z
-	mid := fk + z2/2
-	half := z * math.Sqrt(fk*(fn-fk)/fn+z2/4)
-	return max((mid-half)/(fn+z2), 0), min((mid+half)/(fn+z2), 1)
 }
 
 func printSimulation(w io.Writer, rep *simReport) {

@@ -172,25 +172,3 @@ func TestSimulateBadInput(t *testing.T) {
 		}
 	}
 }
-
-// Newcombe, R. G. (1998). Two-sided confidence intervals for the single
-// proportion: comparison of seven methods. Statistics in Medicine 17,
-// 857-872, Table I, method 3 (score interval without continuity
-// correction), printed to four decimals. The figures are from memory and
-// agree with a public test suite that quotes the same table.
-func TestWilsonNewcombe1998(t *testing.T) {
-	for _, tc := range []struct {
-		k, n   int
-		lo, hi float64
-	}{
-		{81, 263, 0.2553, 0.3662},
-		{15, 148, 0.0624, 0.1605},
-		{0, 20, 0.0000, 0.1611},
-		{1, 29, 0.0061, 0.1718},
-	} {
-		lo, hi := wilson(tc.k, tc.n, z95)
-		if math.Abs(lo-tc.lo) > 5e-5 || math.Abs(hi-tc.hi) > 5e-5 {
-			t.Errorf("%d/%d: [%.4f, %.4f], want [%.4f, %.4f]", tc.k, tc.n, lo, hi, tc.lo, tc.hi)
-		}
-	}
-}
