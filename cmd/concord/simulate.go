@@ -398,7 +398,7 @@ var chartSeries = []struct {
 // with the baseline's accuracy as a dashed line. Hand-written SVG keeps the
 // binary free of a charting library for one small chart.
 func accuracySVG(rep *simReport) string {
-	const w, h, left, right, top, bottom = 760.0, 460.0, 80.0, 220.0, 60.0, 70.0
+	const w, h, left, right, top, bottom = 800.0, 480.0, 80.0, 220.0, 72.0, 70.0
 	pw, ph := w-left-right, h-top-bottom
 	minX, maxX, minY := math.Inf(1), math.Inf(-1), 1.0
 	for _, p := range rep.Policies {
@@ -420,8 +420,9 @@ func accuracySVG(rep *simReport) string {
 	fmt.Fprintf(&b, `<svg xmlns="http://www.w3.org/2000/svg" width="%g" height="%g" viewBox="0 0 %g %g" font-family="sans-serif" font-size="12">`+"\n", w, h, w, h)
 	fmt.Fprintf(&b, `<rect width="%g" height="%g" fill="white"/>`+"\n", w, h)
 	fmt.Fprintf(&b, `<text x="%g" y="24" font-size="16" font-weight="bold">Accuracy against votes per item</text>`+"\n", left)
-	fmt.Fprintf(&b, `<text x="%g" y="42" fill="#555">Simulated crowd (invented figures): %d items, %d classes, %s, seed %d</text>`+"\n",
-		left, rep.Items, rep.Classes, html.EscapeString(rep.Crowd), rep.Seed)
+	fmt.Fprintf(&b, `<text x="%g" y="40" fill="#555">Simulated crowd (invented figures): %d items, %d classes, seed %d</text>`+"\n",
+		left, rep.Items, rep.Classes, rep.Seed)
+	fmt.Fprintf(&b, `<text x="%g" y="54" fill="#555" font-size="11">crowd %s; %s</text>`+"\n", left, html.EscapeString(rep.Crowd), tieRule)
 	for x := x0; x <= x1+1e-9; x++ {
 		fmt.Fprintf(&b, `<line x1="%.1f" y1="%g" x2="%.1f" y2="%g" stroke="#ddd"/><text x="%.1f" y="%g" text-anchor="middle">%g</text>`+"\n",
 			px(x), top, px(x), top+ph, px(x), top+ph+18, x)
@@ -454,14 +455,14 @@ func accuracySVG(rep *simReport) string {
 			fmt.Fprintf(&b, `<circle cx="%.1f" cy="%.1f" r="4" fill="%s"><title>%s: %.2f votes per item, %.2f%%</title></circle>`+"\n",
 				px(p.VotesPerItem), py(p.Accuracy), s.colour, p.Name, p.VotesPerItem, 100*p.Accuracy)
 			if p.Adaptive {
-				fmt.Fprintf(&b, `<text x="%.1f" y="%.1f" fill="%s" font-size="11">%.2f</text>`+"\n", px(p.VotesPerItem)+6, py(p.Accuracy)+14, s.colour, p.Target)
+				fmt.Fprintf(&b, `<text x="%.1f" y="%.1f" fill="%s" font-size="11">%g</text>`+"\n", px(p.VotesPerItem)+6, py(p.Accuracy)+14, s.colour, p.Target)
 			}
 		}
-		ly := top + 80 + float64(i)*22
+		ly := top + 150 + float64(i)*22
 		fmt.Fprintf(&b, `<line x1="%g" y1="%g" x2="%g" y2="%g" stroke="%s" stroke-width="2"/><text x="%g" y="%g">%s</text>`+"\n",
 			left+pw+30, ly, left+pw+50, ly, s.colour, left+pw+56, ly+4, s.label)
 	}
-	fmt.Fprintf(&b, `<text x="%g" y="%g" fill="#555" font-size="11">labels: confidence target</text>`+"\n", left+pw+30, top+80+float64(len(chartSeries))*22)
+	fmt.Fprintf(&b, `<text x="%g" y="%g" fill="#555" font-size="11">labels: confidence target</text>`+"\n", left+pw+30, top+150+float64(len(chartSeries))*22)
 	b.WriteString("</svg>\n")
 	return b.String()
 }

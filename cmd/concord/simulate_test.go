@@ -172,3 +172,14 @@ func TestSimulateBadInput(t *testing.T) {
 		}
 	}
 }
+
+// BenchmarkSimulateDefault times `concord simulate` on its defaults (2000
+// items, 10 classes, the default crowd, four adaptive targets).
+func BenchmarkSimulateDefault(b *testing.B) {
+	e := &env{stdout: io.Discard, stderr: io.Discard}
+	for b.Loop() {
+		if err := run(context.Background(), e, []string{"simulate", "--json"}); err != nil {
+			b.Fatal(err)
+		}
+	}
+}
