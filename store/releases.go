@@ -1,0 +1,227 @@
+package store
+
+import (
+	"context"
+	"encoding/json"
+	"fmt"
+	"time"
+
+	"github.com/jackc/pgx/v5"
+)
+
+// ReleaseCandidate is an item with what a release needs to label and split
+// it: its consensus (if any) and a lead's decision (if any).
+type ReleaseCandidate struct {
+	ID               int64
+	SHA256           [32]byte
+	MediaType        string
+	ClusterID        int64 // 0 when unset
+	GroupKey         string
+	Votes            int
+	LabelID          int64 // consensus label, 0 when none
+	Confidence       float64
+	RollupLabelID    int64
+	RollupConfidence float64
+	PosteriorLabels  []int64
+	Posterior        []float64
+	LeadLabelID      int64 // gold_answers with source 'lead', 0 when none
+}
+
+// ReleaseCandidates returns every item of the project, by id, joined with
+// its consensus and lead decision.
+func (s *Store) ReleaseCandidates(ctx context.Context, projectID int64) ([]ReleaseCandidate, error) {
+	rows, err := s.pool.Query(ctx, `
+		SELECT i.id, i.sha256, i.media_type, coalesce(i.cluster_id, 0), coalesce(i.group_key, ''),
+			coalesce(c.vote_count, i.vote_count), coalesce(c.label_id, 0), coalesce(c.confidence, 0),
+			coalesce(c.rollup_label_id, 0), coalesce(c.rollup_confidence, 0),
+			coalesce(c.posterior_labels, '{}'), coalesce(c.posterior, '{}'), coalesce(g.label_id, 0)
+		FROM items i
+		LEFT JOIN consensus c ON c.item_id = i.id
+		LEFT JOIN gold_answers g ON g.item_id = i.id AND g.source = 'lead'
+		WHERE i.project_id = $1
+		ORDER BY i.id`, projectID)
+	if err != nil {
+		return nil, fmt.Errorf("release candidates of project %d: %w", projectID, err)
+	}
+	defer rows.Close()
+	var out []ReleaseCandidate
+	var sha []byte
+	for rows.Next() {
+		var c ReleaseCandidate
+		if err := rows.Scan(&c.ID, &sha, &c.MediaType, &c.ClusterID, &c.GroupKey, &c.Votes, &c.LabelID, &c.Confidence,
+			&c.RollupLabelID, &c.RollupConfidence, &c.PosteriorLabels, &c.Posterior, &c.LeadLabelID); err != nil {
+			return nil, fmt.Errorf("release candidates of project %d: %w", projectID, err)
+		}
+		c.SHA256 = [32]byte(sha)
+		out = append(out, c)
+	}
+	return out, rows.Err()
+}
+
+// Release is a recorded dataset release. Releases are immutable.
+type Release struct {
+	ID             int64
+	ProjectID      int64
+	Name           string
+	Seed           int64
+	SplitTrain     int
+	SplitVal       int
+	SplitTest      int
+	MinConfidence  float64
+	Level          *int // nil: leaf labels
+	Formats        string
+	ItemCount      int
+	ManifestSHA256 [32]byte
+	Card           string
+	CreatedBy      *int64
+	CreatedAt      time.Time
+}
+
+// ReleaseItem is one item's place in a release.
+type ReleaseItem struct {
+	ItemID     int64
+	Split      string
+	LabelKey   string
+	Confidence float64
+	Votes      int
+	GroupKey   string
+}
+
+const releaseColumns = `id, project_id, name, seed, split_train, split_val, split_test, min_confidence, level,
+	formats, item_count, manifest_sha256, card, created_by, created_at`
+
+func scanRelease(row pgx.Row) (Release, error) {
+	var r Release
+	var sha []byte
+	err := row.Scan(&r.ID, &r.ProjectID, &r.Name, &r.Seed, &r.SplitTrain, &r.SplitVal, &r.SplitTest, &r.MinConfidence,
+		&r.Level, &r.Formats, &r.ItemCount, &sha, &r.Card, &r.CreatedBy, &r.CreatedAt)
+	if err == nil {
+		r.ManifestSHA256 = [32]byte(sha)
+	}
+	return r, err
+}
+
+// CreateRelease records a release and its items in one transaction. A name
+// the project has used already fails with ErrConflict.
+func (s *Store) CreateRelease(ctx context.Context, r Release, items []ReleaseItem) (Release, error) {
+	var out Release
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var err error
+		out, err = scanRelease(tx.QueryRow(ctx, `
+			INSERT INTO releases (project_id, name, seed, split_train, split_val, split_test, min_confidence, level,
+				formats, item_count, manifest_sha256, card, created_by)
+			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)
+			RETURNING `+releaseColumns,
+			r.ProjectID, r.Name, r.Seed, r.SplitTrain, r.SplitVal, r.SplitTest, r.MinConfidence, r.Level,
+			r.Formats, len(items), r.ManifestSHA256[:], r.Card, r.CreatedBy))
+		if err != nil {
+			return err
+		}
+		_, err = tx.CopyFrom(ctx, pgx.Identifier{"release_items"},
+			[]string{"release_id", "item_id", "split", "label_key", "confidence", "votes", "group_key"},
+			pgx.CopyFromSlice(len(items), func(i int) ([]any, error) {
+				it := items[i]
+				return []any{out.ID, it.ItemID, it.Split, it.LabelKey, it.Confidence, int32(it.Votes), it.GroupKey}, nil
+			}))
+		return err
+	})
+	if err != nil {
+		return Release{}, fmt.Errorf("record release %q of project %d: %w", r.Name, r.ProjectID, mapErr(err))
+	}
+	return out, nil
+}
+
+// Releases lists a project's releases, newest first, without their cards.
+func (s *Store) Releases(ctx context.Context, projectID int64) ([]Release, error) {
+	rows, err := s.pool.Query(ctx, `SELECT `+releaseColumns+` FROM releases WHERE project_id = $1 ORDER BY id DESC`, projectID)
+	if err != nil {
+		return nil, fmt.Errorf("releases of project %d: %w", projectID, err)
+	}
+	defer rows.Close()
+	var out []Release
+	for rows.Next() {
+		r, err := scanRelease(rows)
+		if err != nil {
+			return nil, fmt.Errorf("releases of project %d: %w", projectID, err)
+		}
+		r.Card = ""
+		out = append(out, r)
+	}
+	return out, rows.Err()
+}
+
+// ReleaseByName returns one release of a project.
+func (s *Store) ReleaseByName(ctx context.Context, projectID int64, name string) (Release, error) {
+	r, err := scanRelease(s.pool.QueryRow(ctx, `SELECT `+releaseColumns+` FROM releases WHERE project_id = $1 AND name = $2`, projectID, name))
+	if err != nil {
+		return Release{}, fmt.Errorf("release %q of project %d: %w", name, projectID, mapErr(err))
+	}
+	return r, nil
+}
+
+// ReleaseItems returns a release's items by id.
+func (s *Store) ReleaseItems(ctx context.Context, releaseID int64) ([]ReleaseItem, error) {
+	rows, err := s.pool.Query(ctx, `SELECT item_id, split, label_key, confidence, votes, group_key
+		FROM release_items WHERE release_id = $1 ORDER BY item_id`, releaseID)
+	if err != nil {
+		return nil, fmt.Errorf("items of release %d: %w", releaseID, err)
+	}
+	defer rows.Close()
+	var out []ReleaseItem
+	for rows.Next() {
+		var it ReleaseItem
+		if err := rows.Scan(&it.ItemID, &it.Split, &it.LabelKey, &it.Confidence, &it.Votes, &it.GroupKey); err != nil {
+			return nil, fmt.Errorf("items of release %d: %w", releaseID, err)
+		}
+		out = append(out, it)
+	}
+	return out, rows.Err()
+}
+
+// PriorSplits returns, for every item in an earlier release of the project
+// cut with this seed and split, the split of the latest such release.
+func (s *Store) PriorSplits(ctx context.Context, projectID, seed int64, train, val, test int) (map[int64]string, error) {
+	rows, err := s.pool.Query(ctx, `
+		SELECT DISTINCT ON (ri.item_id) ri.item_id, ri.split
+		FROM release_items ri JOIN releases r ON r.id = ri.release_id
+		WHERE r.project_id = $1 AND r.seed = $2 AND r.split_train = $3 AND r.split_val = $4 AND r.split_test = $5
+		ORDER BY ri.item_id, r.id DESC`, projectID, seed, train, val, test)
+	if err != nil {
+		return nil, fmt.Errorf("earlier splits of project %d: %w", projectID, err)
+	}
+	defer rows.Close()
+	out := map[int64]string{}
+	for rows.Next() {
+		var id int64
+		var split string
+		if err := rows.Scan(&id, &split); err != nil {
+			return nil, fmt.Errorf("earlier splits of project %d: %w", projectID, err)
+		}
+		out[id] = split
+	}
+	return out, rows.Err()
+}
+
+// AgreementSummary returns the engine's last project summary, or nil when
+// the engine has not run.
+func (s *Store) AgreementSummary(ctx context.Context, projectID int64) (json.RawMessage, error) {
+	var raw []byte
+	err := s.pool.QueryRow(ctx, `SELECT summary FROM project_stats WHERE project_id = $1`, projectID).Scan(&raw)
+	if err == pgx.ErrNoRows {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, fmt.Errorf("agreement summary of project %d: %w", projectID, err)
+	}
+	return raw, nil
+}
+
+// VoteTotals counts a project's votes (with "can't tell", which are paid)
+// and the seconds labellers spent on them, for a release's cost.
+func (s *Store) VoteTotals(ctx context.Context, projectID int64) (votes int64, seconds float64, err error) {
+	err = s.pool.QueryRow(ctx, `SELECT count(*), coalesce(sum(seconds), 0) FROM votes WHERE project_id = $1`, projectID).Scan(&votes, &seconds)
+	if err != nil {
+		return 0, 0, fmt.Errorf("vote totals of project %d: %w", projectID, err)
+	}
+	return votes, seconds, nil
+}
