@@ -1,0 +1,175 @@
+package store
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"slices"
+	"time"
+
+	"github.com/jackc/pgx/v5"
+)
+
+// ClaimRequest asks for the next item a labeller should see.
+type ClaimRequest struct {
+	ProjectID  int64
+	LabellerID int64
+	// Exclude lists items the client holds already (its prefetch queue) or
+	// has just skipped; they are neither resumed nor handed out again.
+	Exclude []int64
+	// Gold asks for a gold item first; the caller draws against the
+	// project's gold rate, so the store does no randomness of its own.
+	Gold bool
+	// GoldStart is where the walk through the gold items starts (any id;
+	// the walk wraps around), so labellers do not all get the same one.
+	GoldStart int64
+	// Lifetime is how long the claim lasts (the project's claim seconds).
+	Lifetime time.Duration
+}
+
+// Claim is an item handed to a labeller until ExpiresAt.
+type Claim struct {
+	Item      Item
+	ExpiresAt time.Time
+	// Resumed says the labeller held this claim already (a reload).
+	Resumed bool
+}
+
+// claimSQL picks and claims one item in one statement: a claim the
+// labeller holds already (resume), else a gold item when asked, else the
+// open item of highest priority that the labeller has not voted on and that
+// fewer live claims hold than it still needs votes. Expired claims count for
+// nothing and the labeller's own expired claim is overwritten in place.
+const claimSQL = `
+WITH resume AS (
+	SELECT item_id AS id FROM claims
+	WHERE labeller_id = $2 AND project_id = $1 AND expires_at > now() AND item_id <> ALL($3)
+	ORDER BY claimed_at, item_id
+	LIMIT 1
+), gold AS (
+	SELECT i.id FROM items i JOIN gold_answers g ON g.item_id = i.id
+	WHERE $4 AND g.project_id = $1 AND NOT EXISTS (SELECT 1 FROM resume)
+		AND i.id <> ALL($3)
+		AND NOT EXISTS (SELECT 1 FROM votes v WHERE v.item_id = i.id AND v.labeller_id = $2)
+	ORDER BY i.id < $5, i.id
+	LIMIT 1
+	FOR UPDATE OF i SKIP LOCKED
+), open AS (
+	SELECT i.id FROM items i
+	WHERE i.project_id = $1 AND i.status IN ('unstarted', 'needs_votes')
+		AND NOT EXISTS (SELECT 1 FROM resume) AND NOT EXISTS (SELECT 1 FROM gold)
+		AND i.id <> ALL($3)
+		AND NOT EXISTS (SELECT 1 FROM gold_answers g WHERE g.item_id = i.id)
+		AND NOT EXISTS (SELECT 1 FROM votes v WHERE v.item_id = i.id AND v.labeller_id = $2)
+		AND i.votes_needed > (SELECT count(*) FROM claims c
+			WHERE c.item_id = i.id AND c.expires_at > now() AND c.labeller_id <> $2)
+	ORDER BY i.priority DESC, i.id
+	LIMIT 1
+	FOR UPDATE SKIP LOCKED
+), chosen AS (
+	SELECT id, 'resume' AS how FROM resume
+	UNION ALL SELECT id, 'gold' FROM gold
+	UNION ALL SELECT id, 'open' FROM open
+	LIMIT 1
+)
+INSERT INTO claims (item_id, labeller_id, project_id, claimed_at, expires_at)
+SELECT id, $2, $1, now(), now() + make_interval(secs => $6) FROM chosen
+ON CONFLICT (item_id, labeller_id) DO UPDATE
+	SET claimed_at = excluded.claimed_at, expires_at = excluded.expires_at
+RETURNING item_id, expires_at, (SELECT how FROM chosen)`
+
+// claimCheckSQL counts the item's live claims with a fresh snapshot. Under
+// READ COMMITTED the claim statement's snapshot is taken before it locks
+// the item row, so a claim committed by another labeller in between is
+// invisible to it; this second look, made while the row lock is still held,
+// sees every claim that could compete for the same slot.
+const claimCheckSQL = `SELECT ` + itemColumns + `,
+	votes_needed, (SELECT count(*) FROM claims c WHERE c.item_id = items.id AND c.expires_at > now())
+	FROM items WHERE id = $1`
+
+// maxClaimRetries bounds the retries after losing a last slot to a race.
+const maxClaimRetries = 8
+
+// ClaimNext claims the next item for a labeller, or ErrNotFound when
+// nothing is left for them. Two labellers asking at once never share an
+// item's last needed slot.
+func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) {
+	exclude := slices.Clone(req.Exclude)
+	if exclude == nil {
+		exclude = []int64{}
+	}
+	secs := req.Lifetime.Seconds()
+	if secs <= 0 {
+		secs = 300
+	}
+	for range maxClaimRetries {
+		var c Claim
+		lost := false
+		err := s.inTx(ctx, func(tx pgx.Tx) error {
+			var itemID int64
+			var how string
+			err := tx.QueryRow(ctx, claimSQL, req.ProjectID, req.LabellerID, exclude, req.Gold,
+				req.GoldStart, secs).Scan(&itemID, &c.ExpiresAt, &how)
+			if err != nil {
+				return err
+			}
+			c.Resumed = how == "resume"
+			var needed, live int
+			it, err := scanItem(withExtra{tx.QueryRow(ctx, claimCheckSQL, itemID), []any{&needed, &live}})
+			if err != nil {
+				return err
+			}
+			c.Item = it
+			if how == "open" && live > needed {
+				lost = true
+				exclude = append(exclude, itemID)
+				return errLostSlot
+			}
+			return nil
+		})
+		if lost {
+			continue
+		}
+		if err != nil {
+			return Claim{}, fmt.Errorf("claim next item in project %d for labeller %d: %w", req.ProjectID, req.LabellerID, mapErr(err))
+		}
+		return c, nil
+	}
+	return Claim{}, fmt.Errorf("claim next item in project %d for labeller %d: %w", req.ProjectID, req.LabellerID, ErrNotFound)
+}
+
+var errLostSlot = errors.New("lost the last slot to another labeller")
+
+// withExtra is a row whose trailing columns go to extra, so scanItem can
+// read an item followed by more columns.
+type withExtra struct {
+	pgx.Row
+	extra []any
+}
+
+func (r withExtra) Scan(dest ...any) error { return r.Row.Scan(append(dest, r.extra...)...) }
+
+// ReleaseClaim gives a claimed item back (the labeller skipped it).
+// Releasing a claim the labeller does not hold is not an error.
+func (s *Store) ReleaseClaim(ctx context.Context, projectID, labellerID, itemID int64) error {
+	_, err := s.pool.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2 AND project_id = $3`,
+		itemID, labellerID, projectID)
+	if err != nil {
+		return fmt.Errorf("release claim on item %d for labeller %d: %w", itemID, labellerID, err)
+	}
+	return nil
+}
+
+// ItemAccess says whether a labeller may see an item: they hold a claim
+// on it (live or expired but not taken over) or voted on it.
+func (s *Store) ItemAccess(ctx context.Context, projectID, labellerID, itemID int64) (bool, error) {
+	var ok bool
+	err := s.pool.QueryRow(ctx, `
+		SELECT EXISTS (SELECT 1 FROM claims WHERE item_id = $1 AND labeller_id = $2 AND project_id = $3)
+		    OR EXISTS (SELECT 1 FROM votes WHERE item_id = $1 AND labeller_id = $2 AND project_id = $3)`,
+		itemID, labellerID, projectID).Scan(&ok)
+	if err != nil {
+		return false, fmt.Errorf("access of labeller %d to item %d: %w", labellerID, itemID, err)
+	}
+	return ok, nil
+}

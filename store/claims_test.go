@@ -1,0 +1,188 @@
+package store_test
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"errors"
+	"fmt"
+	"sync"
+	"testing"
+	"time"
+
+	"github.com/concord-labs/concord/store"
+)
+
+var itemSeq int
+
+// addItems inserts n items with made-up bytes and returns their ids in order.
+func addItems(t *testing.T, s *store.Store, projectID int64, n int) []int64 {
+	t.Helper()
+	items := make([]store.NewItem, n)
+	for i := range items {
+		itemSeq++
+		sum := sha256.Sum256(fmt.Appendf(nil, "item %d of project %d", itemSeq, projectID))
+		items[i] = store.NewItem{SHA256: sum, FileKey: hex.EncodeToString(sum[:]), MediaType: "image/png",
+			Bytes: 100, Width: 10, Height: 10}
+	}
+	got, err := s.InsertItems(context.Background(), projectID, items)
+	if err != nil {
+		t.Fatal(err)
+	}
+	ids := make([]int64, n)
+	for i, it := range items {
+		ids[i] = got[it.SHA256]
+	}
+	return ids
+}
+
+func claim(t *testing.T, s *store.Store, projectID, labeller int64, exclude ...int64) (store.Claim, error) {
+	t.Helper()
+	return s.ClaimNext(context.Background(), store.ClaimRequest{ProjectID: projectID, LabellerID: labeller,
+		Exclude: exclude, Lifetime: time.Minute})
+}
+
+func TestClaimOrderResumeAndExclude(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	ids := addItems(t, f.s, f.project.ID, 3)
+	// The highest priority comes first.
+	if _, err := f.s.Pool().Exec(ctx, `UPDATE items SET priority = 5 WHERE id = $1`, ids[2]); err != nil {
+		t.Fatal(err)
+	}
+	ana := f.labellers[0].ID
+	c, err := claim(t, f.s, f.project.ID, ana)
+	if err != nil || c.Item.ID != ids[2] || c.Resumed {
+		t.Fatalf("first claim = %d (resumed %v), %v; want item %d", c.Item.ID, c.Resumed, err, ids[2])
+	}
+	// Asking again without excluding it resumes the same claim.
+	c, err = claim(t, f.s, f.project.ID, ana)
+	if err != nil || c.Item.ID != ids[2] || !c.Resumed {
+		t.Fatalf("second claim = %d (resumed %v), %v; want resumed %d", c.Item.ID, c.Resumed, err, ids[2])
+	}
+	// Excluding it (the client holds it already) gives the next one by id.
+	c, err = claim(t, f.s, f.project.ID, ana, ids[2])
+	if err != nil || c.Item.ID != ids[0] {
+		t.Fatalf("claim excluding %d = %d, %v; want %d", ids[2], c.Item.ID, err, ids[0])
+	}
+	if _, err := claim(t, f.s, f.project.ID, ana, ids...); !errors.Is(err, store.ErrNotFound) {
+		t.Errorf("claim excluding all: err = %v, want ErrNotFound", err)
+	}
+	ok, err := f.s.ItemAccess(ctx, f.project.ID, ana, ids[0])
+	if err != nil || !ok {
+		t.Errorf("access to a claimed item = %v, %v", ok, err)
+	}
+	ok, _ = f.s.ItemAccess(ctx, f.project.ID, ana, ids[1])
+	if ok {
+		t.Error("access to an unclaimed item granted")
+	}
+}
+
+func TestClaimNeverExceedsVotesNeeded(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	id := addItems(t, f.s, f.project.ID, 1)[0]
+	// votes_needed is 1 by default: one claim takes the only slot.
+	ana, ben := f.labellers[0].ID, f.labellers[1].ID
+	if c, err := claim(t, f.s, f.project.ID, ana); err != nil || c.Item.ID != id {
+		t.Fatalf("ana's claim = %v, %v", c.Item.ID, err)
+	}
+	if _, err := claim(t, f.s, f.project.ID, ben); !errors.Is(err, store.ErrNotFound) {
+		t.Fatalf("ben's claim on a full item: err = %v, want ErrNotFound", err)
+	}
+	// Once ana's claim expires, the item returns to the pool.
+	if _, err := f.s.Pool().Exec(ctx, `UPDATE claims SET claimed_at = now() - interval '2 hours', expires_at = now() - interval '1 hour' WHERE item_id = $1`, id); err != nil {
+		t.Fatal(err)
+	}
+	if c, err := claim(t, f.s, f.project.ID, ben); err != nil || c.Item.ID != id {
+		t.Fatalf("ben's claim after expiry = %v, %v; want %d", c.Item.ID, err, id)
+	}
+	// Skipping releases it again.
+	if err := f.s.ReleaseClaim(ctx, f.project.ID, ben, id); err != nil {
+		t.Fatal(err)
+	}
+	if c, err := claim(t, f.s, f.project.ID, ana); err != nil || c.Item.ID != id {
+		t.Fatalf("ana's claim after ben skipped = %v, %v", c.Item.ID, err)
+	}
+}
+
+// TestClaimRace has many labellers claim at once, round after round, items
+// that each need one vote: no item may ever hold two live claims.
+func TestClaimRace(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	var labellers []int64
+	for i := range 8 {
+		u, err := f.s.CreateUser(ctx, store.User{Login: fmt.Sprintf("racer%d-%s", i, f.project.Slug), DisplayName: "r", Role: store.RoleLabeller})
+		if err != nil {
+			t.Fatal(err)
+		}
+		labellers = append(labellers, u.ID)
+	}
+	for round := range 30 {
+		addItems(t, f.s, f.project.ID, 3)
+		var wg sync.WaitGroup
+		got := make([]int64, len(labellers))
+		for i, l := range labellers {
+			wg.Go(func() {
+				c, err := f.s.ClaimNext(ctx, store.ClaimRequest{ProjectID: f.project.ID, LabellerID: l, Lifetime: time.Minute})
+				if err == nil {
+					got[i] = c.Item.ID
+				} else if !errors.Is(err, store.ErrNotFound) {
+					t.Error(err)
+				}
+			})
+		}
+		wg.Wait()
+		seen := map[int64]int{}
+		for _, id := range got {
+			if id != 0 {
+				seen[id]++
+			}
+		}
+		if len(seen) != 3 {
+			t.Errorf("round %d: %d items claimed, want all 3 (claims %v)", round, len(seen), got)
+		}
+		for id, n := range seen {
+			if n > 1 {
+				t.Fatalf("round %d: item %d claimed by %d labellers, needs 1 vote", round, id, n)
+			}
+		}
+		if _, err := f.s.Pool().Exec(ctx, `DELETE FROM claims WHERE project_id = $1`, f.project.ID); err != nil {
+			t.Fatal(err)
+		}
+		if _, err := f.s.Pool().Exec(ctx, `UPDATE items SET status = 'done' WHERE project_id = $1`, f.project.ID); err != nil {
+			t.Fatal(err)
+		}
+	}
+}
+
+func TestGoldClaims(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	ids := addItems(t, f.s, f.project.ID, 4)
+	if err := f.s.SetGoldAnswer(ctx, f.project.ID, ids[3], f.labels["glass"].ID, store.GoldSourceGold, nil); err != nil {
+		t.Fatal(err)
+	}
+	ana := f.labellers[0].ID
+	// Without the gold draw, the gold item is never handed out.
+	c, err := claim(t, f.s, f.project.ID, ana, ids[0], ids[1], ids[2])
+	if !errors.Is(err, store.ErrNotFound) {
+		t.Fatalf("claim without gold draw = %d, %v; want ErrNotFound", c.Item.ID, err)
+	}
+	c, err = f.s.ClaimNext(ctx, store.ClaimRequest{ProjectID: f.project.ID, LabellerID: ana, Gold: true, Lifetime: time.Minute})
+	if err != nil || c.Item.ID != ids[3] {
+		t.Fatalf("gold claim = %d, %v; want %d", c.Item.ID, err, ids[3])
+	}
+	glass := f.labels["glass"].ID
+	res, err := f.s.RecordVote(ctx, store.NewVote{ID: "7b0c1a1e-0000-4000-8000-000000000001", ProjectID: f.project.ID,
+		ItemID: ids[3], LabellerID: ana, LabelID: &glass, Seconds: 2}, nil)
+	if err != nil || res.GoldLabel == nil || *res.GoldLabel != f.labels["glass"].ID {
+		t.Fatalf("vote on gold item = %+v, %v", res, err)
+	}
+	// Voted on: no second gold claim for ana; the normal pool comes instead.
+	c, err = f.s.ClaimNext(ctx, store.ClaimRequest{ProjectID: f.project.ID, LabellerID: ana, Gold: true, Lifetime: time.Minute})
+	if err != nil || c.Item.ID != ids[0] {
+		t.Fatalf("gold claim after voting on the only gold item = %d, %v; want %d", c.Item.ID, err, ids[0])
+	}
+}

@@ -1,0 +1,211 @@
+package store
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"time"
+
+	"github.com/jackc/pgx/v5"
+)
+
+// ErrNoClaim means a vote came for an item the labeller does not hold.
+var ErrNoClaim = &ConflictError{Constraint: "claim", Detail: "the item is not claimed by this labeller"}
+
+// NewVote is a vote as the client sends it. ID is made by the client, so a
+// retry after a lost response is stored once.
+type NewVote struct {
+	ID         string // UUID
+	ProjectID  int64
+	ItemID     int64
+	LabellerID int64
+	LabelID    *int64 // nil: "can't tell"
+	Seconds    float64
+}
+
+// VoteResult says what happened to a vote.
+type VoteResult struct {
+	// Duplicate: this vote id was stored before; nothing changed now.
+	Duplicate bool
+	// GoldLabel is the item's known answer when it is a gold item; the
+	// caller shows it only if the project gives gold feedback.
+	GoldLabel *int64
+}
+
+// RecordVote stores a vote, releases the labeller's claim, counts the vote
+// on the item and updates the item's consensus and status through decide,
+// all in one transaction. A vote id seen before returns Duplicate; a
+// different second vote by the labeller on the item is ErrConflict, and a
+// vote without a claim is ErrNoClaim.
+func (s *Store) RecordVote(ctx context.Context, v NewVote, decide Decider) (VoteResult, error) {
+	var res VoteResult
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var claimed, inserted bool
+		err := tx.QueryRow(ctx, `
+			WITH c AS (
+				DELETE FROM claims WHERE item_id = $3 AND labeller_id = $4 AND project_id = $2 RETURNING item_id
+			), ins AS (
+				INSERT INTO votes (id, project_id, item_id, labeller_id, label_id, seconds)
+				SELECT $1, $2, $3, $4, $5, $6 FROM c
+				ON CONFLICT (id) DO NOTHING
+				RETURNING label_id
+			), upd AS (
+				UPDATE items SET vote_count = vote_count + 1
+				WHERE id = $3 AND EXISTS (SELECT 1 FROM ins WHERE label_id IS NOT NULL)
+				RETURNING id
+			)
+			SELECT EXISTS (SELECT 1 FROM c), EXISTS (SELECT 1 FROM ins), (SELECT count(*) FROM upd)`,
+			v.ID, v.ProjectID, v.ItemID, v.LabellerID, v.LabelID, v.Seconds).Scan(&claimed, &inserted, new(int))
+		if err != nil {
+			return err
+		}
+		if !inserted {
+			return errNotInserted
+		}
+		if v.LabelID == nil {
+			// "Can't tell" changes no count and no consensus, but
+			// the gold answer still decides the feedback.
+			return tx.QueryRow(ctx, `SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).Scan(&res.GoldLabel)
+		}
+		return updateItem(ctx, tx, v.ProjectID, v.ItemID, decide, &res.GoldLabel)
+	})
+	if errors.Is(err, errNotInserted) {
+		// Either the id was stored before (a retry) or there was no claim.
+		var labeller, item int64
+		err := s.pool.QueryRow(ctx, `SELECT labeller_id, item_id FROM votes WHERE id = $1`, v.ID).Scan(&labeller, &item)
+		switch {
+		case err == nil && labeller == v.LabellerID && item == v.ItemID:
+			res.Duplicate = true
+			s.pool.QueryRow(ctx, `SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).Scan(&res.GoldLabel)
+			return res, nil
+		case err == nil:
+			return VoteResult{}, fmt.Errorf("vote %s: id used by another vote: %w", v.ID, ErrConflict)
+		case errors.Is(err, pgx.ErrNoRows):
+			return VoteResult{}, fmt.Errorf("vote on item %d by labeller %d: %w", v.ItemID, v.LabellerID, ErrNoClaim)
+		default:
+			return VoteResult{}, fmt.Errorf("vote %s: %w", v.ID, err)
+		}
+	}
+	if err != nil {
+		return VoteResult{}, fmt.Errorf("vote on item %d by labeller %d: %w", v.ItemID, v.LabellerID, mapErr(err))
+	}
+	return res, nil
+}
+
+var errNotInserted = errors.New("vote not inserted")
+
+// updateItem recomputes an item's state through decide, unless it is a
+// gold item, whose answer is fixed.
+func updateItem(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide Decider, gold **int64) error {
+	iv, err := itemVotes(ctx, tx, projectID, itemID)
+	if err != nil {
+		return err
+	}
+	*gold = iv.GoldLabel
+	if iv.GoldLabel != nil || decide == nil {
+		return nil
+	}
+	u, err := decide(ctx, iv)
+	if err != nil {
+		return err
+	}
+	return applyItemUpdate(ctx, tx, projectID, itemID, u)
+}
+
+// UndoLastVote deletes the labeller's latest vote in the project if it is
+// younger than window, restores the item's count and consensus, and claims
+// the item for the labeller again. It returns the item; ErrNotFound when
+// there is no vote young enough.
+func (s *Store) UndoLastVote(ctx context.Context, projectID, labellerID int64, window, lifetime time.Duration, decide Decider) (Item, error) {
+	var it Item
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var itemID int64
+		var label *int64
+		err := tx.QueryRow(ctx, `
+			DELETE FROM votes WHERE id = (
+				SELECT id FROM votes WHERE labeller_id = $2 AND project_id = $1
+					AND created_at > now() - make_interval(secs => $3)
+				ORDER BY created_at DESC LIMIT 1)
+			RETURNING item_id, label_id`, projectID, labellerID, window.Seconds()).Scan(&itemID, &label)
+		if err != nil {
+			return err
+		}
+		if label != nil {
+			if _, err := tx.Exec(ctx, `UPDATE items SET vote_count = vote_count - 1 WHERE id = $1`, itemID); err != nil {
+				return err
+			}
+		}
+		_, err = tx.Exec(ctx, `
+			INSERT INTO claims (item_id, labeller_id, project_id, expires_at)
+			VALUES ($1, $2, $3, now() + make_interval(secs => $4))
+			ON CONFLICT (item_id, labeller_id) DO UPDATE SET claimed_at = now(), expires_at = excluded.expires_at`,
+			itemID, labellerID, projectID, lifetime.Seconds())
+		if err != nil {
+			return err
+		}
+		if label != nil {
+			var gold *int64
+			if err := updateItem(ctx, tx, projectID, itemID, decide, &gold); err != nil {
+				return err
+			}
+		}
+		it, err = scanItem(tx.QueryRow(ctx, `SELECT `+itemColumns+` FROM items WHERE id = $1`, itemID))
+		return err
+	})
+	if err != nil {
+		return Item{}, fmt.Errorf("undo last vote of labeller %d in project %d: %w", labellerID, projectID, mapErr(err))
+	}
+	return it, nil
+}
+
+// Tally is a labeller's own work since a time.
+type Tally struct {
+	Votes   int     `json:"votes"`
+	Seconds float64 `json:"seconds"`
+}
+
+// VoteTally counts a labeller's votes and time in a project since a time.
+func (s *Store) VoteTally(ctx context.Context, projectID, labellerID int64, since time.Time) (Tally, error) {
+	var t Tally
+	err := s.pool.QueryRow(ctx, `
+		SELECT count(*), coalesce(sum(seconds), 0) FROM votes
+		WHERE labeller_id = $1 AND created_at >= $2 AND project_id = $3`, labellerID, since, projectID).Scan(&t.Votes, &t.Seconds)
+	if err != nil {
+		return Tally{}, fmt.Errorf("tally of labeller %d: %w", labellerID, err)
+	}
+	return t, nil
+}
+
+// Vote is a stored vote.
+type Vote struct {
+	ID         string
+	ProjectID  int64
+	ItemID     int64
+	LabellerID int64
+	LabelID    *int64
+	Seconds    float64
+	CreatedAt  time.Time
+}
+
+// VotesOfLabeller lists a labeller's votes in a project, newest first (for
+// tests, the lead pages and pay).
+func (s *Store) VotesOfLabeller(ctx context.Context, projectID, labellerID int64) ([]Vote, error) {
+	rows, err := s.pool.Query(ctx, `
+		SELECT id::text, project_id, item_id, labeller_id, label_id, seconds, created_at FROM votes
+		WHERE project_id = $1 AND labeller_id = $2 ORDER BY created_at DESC, id`, projectID, labellerID)
+	if err != nil {
+		return nil, fmt.Errorf("votes of labeller %d: %w", labellerID, err)
+	}
+	defer rows.Close()
+	var out []Vote
+	for rows.Next() {
+		var v Vote
+		var secs float32
+		if err := rows.Scan(&v.ID, &v.ProjectID, &v.ItemID, &v.LabellerID, &v.LabelID, &secs, &v.CreatedAt); err != nil {
+			return nil, fmt.Errorf("votes of labeller %d: %w", labellerID, err)
+		}
+		v.Seconds = float64(secs)
+		out = append(out, v)
+	}
+	return out, rows.Err()
+}
