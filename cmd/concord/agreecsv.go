@@ -155,6 +155,9 @@ func (t *csvTable) each(fn func(rec []string, line int) error) error {
 func (t *csvTable) readError(err error) error {
 	var pe *csv.ParseError
 	if errors.As(err, &pe) {
+		if pe.StartLine != pe.Line {
+			return &csvError{file: t.file, line: pe.StartLine, msg: fmt.Sprintf("record runs to line %d, column %d: %v", pe.Line, pe.Column, pe.Err)}
+		}
 		return &csvError{file: t.file, line: pe.Line, msg: fmt.Sprintf("column %d: %v", pe.Column, pe.Err)}
 	}
 	return fmt.Errorf("read %s: %w", t.file, err)
