@@ -139,4 +139,3 @@ func copyBlob(ctx context.Context, tw *tar.Writer, blobs blob.Store, r Row, head
 	}
 	return nil
 }
-
