@@ -1,0 +1,122 @@
+package main
+
+import (
+	"bufio"
+	"bytes"
+	"context"
+	"errors"
+	"fmt"
+	"os"
+	"path/filepath"
+	"strings"
+	"testing"
+)
+
+func TestReleaseCommand(t *testing.T) {
+	ctx := context.Background()
+	s, p := cliProject(t, "release-cli")
+	dir, data := t.TempDir(), t.TempDir()
+	for k := range 30 {
+		writeTestFile(t, filepath.Join(dir, fmt.Sprintf("%03d.png", k)), beltPNG(t, k))
+	}
+	if r := runConcord(t, "", []string{"import", "--project", "release-cli", "--data", data, dir}); r.err != nil {
+		t.Fatalf("import: %v\n%s", r.err, r.stdout)
+	}
+	// Even items are sure PET bottles, odd ones disputed between the two
+	// leaves but for item 1 a lead decided.
+	labels, _ := s.Labels(ctx, p.ID)
+	ids := map[string]int64{}
+	for _, l := range labels {
+		ids[l.Key] = l.ID
+	}
+	_, err := s.Pool().Exec(ctx, `
+		INSERT INTO consensus (item_id, project_id, label_id, confidence, method, vote_count)
+		SELECT id, project_id, CASE WHEN id % 2 = 0 THEN $2::bigint ELSE $3::bigint END,
+			CASE WHEN id % 2 = 0 THEN 0.98 ELSE 0.6 END, 'ds', 3
+		FROM items WHERE project_id = $1`, p.ID, ids["pet-bottle"], ids["aluminium-can"])
+	if err != nil {
+		t.Fatal(err)
+	}
+	var firstOdd int64
+	s.Pool().QueryRow(ctx, `SELECT min(id) FROM items WHERE project_id = $1 AND id % 2 = 1`, p.ID).Scan(&firstOdd)
+	if _, err := s.Pool().Exec(ctx, `INSERT INTO gold_answers (item_id, project_id, label_id, source) VALUES ($1, $2, $3, 'lead')`,
+		firstOdd, p.ID, ids["aluminium-can"]); err != nil {
+		t.Fatal(err)
+	}
+
+	out := filepath.Join(t.TempDir(), "r1")
+	r := runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r1", "--data", data,
+		"--format", "jsonl,csv,folders", "--split", "70/15/15", "--out", out})
+	if r.err != nil {
+		t.Fatalf("release: %v\n%s", r.err, r.stdout)
+	}
+	if !strings.Contains(r.stdout, "release r1 (id ") || !strings.Contains(r.stdout, ": 16 items, split 70/15/15, seed 7, level leaf") ||
+		!strings.Contains(r.stdout, "images: 16 hard-linked, 0 copied") {
+		t.Errorf("release output:\n%s", r.stdout)
+	}
+	for _, name := range []string{"manifest.jsonl", "manifest.csv", "release.json", "CARD.md", "SHA256SUMS"} {
+		if _, err := os.Stat(filepath.Join(out, name)); err != nil {
+			t.Errorf("release lacks %s", name)
+		}
+	}
+	card, _ := os.ReadFile(filepath.Join(out, "CARD.md"))
+	for _, want := range []string{"| pet-bottle |", "| aluminium-can |", "seed 7", "consent"} {
+		if !bytes.Contains(card, []byte(want)) {
+			t.Errorf("CARD.md lacks %q", want)
+		}
+	}
+	csv, _ := os.ReadFile(filepath.Join(out, "manifest.csv"))
+	sc := bufio.NewScanner(bytes.NewReader(csv))
+	sc.Scan()
+	if sc.Text() != "item,file,sha256,split,label,label_path,confidence,votes,group" {
+		t.Errorf("CSV header %q", sc.Text())
+	}
+	files := 0
+	for sc.Scan() {
+		f := strings.Split(sc.Text(), ",")
+		if _, err := os.Stat(filepath.Join(out, f[1])); err != nil {
+			t.Errorf("manifest names %s, which the folder lacks", f[1])
+		}
+		if f[0] == fmt.Sprint(firstOdd) && (f[4] != "aluminium-can" || f[5] != "metal/aluminium-can" || f[6] != "1") {
+			t.Errorf("lead-decided item: %s", sc.Text())
+		}
+		files++
+	}
+	if files != 16 {
+		t.Errorf("%d manifest rows, want 16 (15 sure + 1 lead decision)", files)
+	}
+
+	// The same inputs and seed under a new name give the same manifest.
+	out2 := filepath.Join(t.TempDir(), "r2")
+	r = runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r2", "--data", data,
+		"--format", "jsonl", "--split", "70/15/15", "--out", out2})
+	if r.err != nil {
+		t.Fatal(r.err)
+	}
+	a, _ := os.ReadFile(filepath.Join(out, "manifest.jsonl"))
+	b, _ := os.ReadFile(filepath.Join(out2, "manifest.jsonl"))
+	if !bytes.Equal(a, b) || len(a) == 0 {
+		t.Error("manifest.jsonl differs between two releases of the same inputs and seed")
+	}
+	// A release name is used once; a non-empty folder is refused.
+	r = runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r2", "--data", data, "--out", t.TempDir()})
+	if r.err == nil || !strings.Contains(r.err.Error(), "conflict") {
+		t.Errorf("second r2: %v, want a conflict", r.err)
+	}
+}
+
+func TestReleaseCommandUsage(t *testing.T) {
+	for _, args := range [][]string{
+		{"release", "--project", "p", "--name", "n"},
+		{"release", "--project", "p", "--name", "n", "--out", "o", "--split", "80/20"},
+		{"release", "--project", "p", "--name", "n", "--out", "o", "--level", "deep"},
+		{"release", "--project", "p", "--name", "n", "--out", "o", "--format", "xml"},
+		{"release", "--project", "p", "--name", "bad name", "--out", "o"},
+	} {
+		r := runConcord(t, "", args)
+		var ue usageError
+		if r.err == nil || !errors.As(r.err, &ue) {
+			t.Errorf("%v: error %v, want a usage error", args, r.err)
+		}
+	}
+}
