@@ -38,6 +38,22 @@ func (s *Server) Handler() http.Handler {
 			r.Route("/lead", func(r chi.Router) {
 				r.Use(s.requireLead)
 				// LEAD ROUTES BEGIN
+				r.Get("/projects", s.handle(s.listProjects))
+				r.Get("/projects/new", s.handle(s.newProject))
+				r.Post("/projects", s.handle(s.createProject))
+				r.Route("/p/{project}", func(r chi.Router) {
+					r.Use(s.requireProject)
+					r.Get("/", s.handle(s.projectHome))
+					r.Get("/setup", s.handle(s.showSetup))
+					r.Post("/setup/taxonomy", s.handle(s.saveTaxonomy))
+					r.Post("/setup/policy", s.handle(s.savePolicy))
+					r.Post("/setup/pay", s.handle(s.savePay))
+					r.Post("/setup/gold", s.handle(s.saveGold))
+					r.Post("/setup/images", s.handle(s.uploadImages))
+					r.Post("/setup/import", s.handle(s.importFolder))
+					r.Get("/progress", s.handle(s.showProgress))
+					r.Get("/agreement", s.handle(s.showAgreement))
+				})
 				// LEAD ROUTES END
 			})
 		})
