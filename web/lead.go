@@ -226,3 +226,34 @@ func methodName(m string) string {
 }
 
 func agreementSource() string { return agreement.LandisKochSource }
+
+func statusVerb(st string) string {
+	switch st {
+	case store.StatusActive:
+		return "Resume"
+	case store.StatusPaused:
+		return "Pause"
+	}
+	return "Block"
+}
+
+func voteLabel(v store.VoteView) string {
+	if v.LabelID == nil {
+		return "can't tell"
+	}
+	return v.LabelKey
+}
+
+func payName(p *store.Project) string {
+	if p.Pay.Model == store.PayPerHour {
+		return fmtMoney(p.Pay.Rate, p.Pay.Currency) + " per recorded hour"
+	}
+	return fmtMoney(p.Pay.Rate, p.Pay.Currency) + " per vote"
+}
+
+func levelName(l *int) string {
+	if l == nil {
+		return "leaf"
+	}
+	return "depth " + strconv.Itoa(*l)
+}

@@ -10,17 +10,17 @@ import (
 // progressData is the progress page: item counts, the recent pace of votes
 // and what that pace means for the finish.
 type progressData struct {
-	P            *store.Project
-	Counts       store.StatusCounts
-	Hours        []store.HourCount // the last 7 days, one entry per hour, zeros filled in
-	Window       time.Duration     // over which the pace is measured
-	RecentVotes  int               // votes in Window
-	PerHour      float64           // RecentVotes / Window in hours
-	ActiveHour   int
-	ActiveToday  int
-	FinishIn     time.Duration // 0 when there is no pace or nothing left
-	FinishAt     time.Time
-	Now          time.Time
+	P           *store.Project
+	Counts      store.StatusCounts
+	Hours       []store.HourCount // the last 7 days, one entry per hour, zeros filled in
+	Window      time.Duration     // over which the pace is measured
+	RecentVotes int               // votes in Window
+	PerHour     float64           // RecentVotes / Window in hours
+	ActiveHour  int
+	ActiveToday int
+	FinishIn    time.Duration // 0 when there is no pace or nothing left
+	FinishAt    time.Time
+	Now         time.Time
 }
 
 // paceWindow is how far back the pace is measured: long enough to smooth a
