@@ -20,9 +20,9 @@ type ClaimRequest struct {
 	// Gold asks for a gold item first; the caller draws against the
 	// project's gold rate, so the store does no randomness of its own.
 	Gold bool
-	// GoldStart is where the walk through the gold items starts (any id;
-	// the walk wraps around), so labellers do not all get the same one.
-	GoldStart int64
+	// GoldSeed shuffles the gold items, so labellers do not all get the
+	// same one first.
+	GoldSeed int64
 	// Lifetime is how long the claim lasts (the project's claim seconds).
 	Lifetime time.Duration
 }
@@ -51,7 +51,7 @@ WITH resume AS (
 	WHERE $4 AND g.project_id = $1 AND NOT EXISTS (SELECT 1 FROM resume)
 		AND i.id <> ALL($3)
 		AND NOT EXISTS (SELECT 1 FROM votes v WHERE v.item_id = i.id AND v.labeller_id = $2)
-	ORDER BY i.id < $5, i.id
+	ORDER BY md5(i.id::text || ':' || ($5::bigint)::text)
 	LIMIT 1
 	FOR UPDATE OF i SKIP LOCKED
 ), open AS (
@@ -109,7 +109,7 @@ func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) 
 			var itemID int64
 			var how string
 			err := tx.QueryRow(ctx, claimSQL, req.ProjectID, req.LabellerID, exclude, req.Gold,
-				req.GoldStart, secs).Scan(&itemID, &c.ExpiresAt, &how)
+				req.GoldSeed, secs).Scan(&itemID, &c.ExpiresAt, &how)
 			if err != nil {
 				return err
 			}

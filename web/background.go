@@ -12,6 +12,7 @@ func (s *Server) StartBackground(ctx context.Context) <-chan struct{} {
 	done := make(chan struct{})
 	go func() {
 		defer close(done)
+		defer waitFor(s.startEngine(ctx))
 		t := time.NewTicker(10 * time.Minute)
 		defer t.Stop()
 		for {

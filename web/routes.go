@@ -25,6 +25,9 @@ func (s *Server) Handler() http.Handler {
 		r.Get("/login", s.handle(s.showLogin))
 		r.Post("/login", s.handle(s.login))
 		r.Post("/logout", s.handle(s.logout))
+		// Invite links are opened before their user exists (labelling block's owner).
+		r.Get("/invite/{token}", s.handle(s.showInvite))
+		r.Post("/invite/{token}", s.handle(s.acceptInvite))
 
 		r.Group(func(r chi.Router) {
 			r.Use(s.requireLogin)
@@ -32,6 +35,20 @@ func (s *Server) Handler() http.Handler {
 
 			// Labelling routes (labellers and leads who are members).
 			// LABELLING ROUTES BEGIN
+			r.Route("/p/{project}", func(r chi.Router) {
+				r.Use(s.requireProject)
+				r.Get("/label", s.handle(s.showLabel))
+				r.Get("/items/{item}/image", s.handle(s.itemImage))
+				r.Get("/items/{item}/thumb", s.handle(s.itemThumb))
+				r.With(s.requireLead).Post("/invites", s.handle(s.createInvite))
+			})
+			r.Route("/api/p/{project}", func(r chi.Router) {
+				r.Use(s.requireProject)
+				r.Post("/next", s.handle(s.claimNext))
+				r.Post("/votes", s.handle(s.createVote))
+				r.Post("/undo", s.handle(s.undoVote))
+				r.Post("/skip", s.handle(s.skipItem))
+			})
 			// LABELLING ROUTES END
 
 			// Lead routes: everything under /lead is refused to labellers with 403.

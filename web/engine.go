@@ -1,0 +1,387 @@
+package web
+
+import (
+	"context"
+	"errors"
+	"fmt"
+	"math"
+	"slices"
+	"strconv"
+	"sync"
+	"time"
+
+	"github.com/concord-labs/concord/agreement"
+	"github.com/concord-labs/concord/store"
+)
+
+// ErrRefitBusy means another session (this process or another one) holds
+// the project's refit lock; the refit was skipped, not failed.
+var ErrRefitBusy = errors.New("refit skipped: another process is refitting this project")
+
+// Engine schedule defaults: a project is refitted once both enough time and
+// enough new votes have passed ("every few seconds or N votes, whichever
+// comes later"), and at the latest engineStaleAfter intervals after a vote,
+// so a quiet project still settles.
+const (
+	DefaultEngineInterval = 5 * time.Second
+	DefaultEngineVotes    = 200
+	engineStaleAfter      = 12
+)
+
+// defaultAccuracy is the one-coin accuracy assumed for a labeller the last
+// fit has not seen yet. It is Concord's choice (a middling labeller), not a
+// published value.
+const defaultAccuracy = 0.7
+
+// engine is the server's agreement engine: the refit loop's schedule and a
+// cache of each project's last fit for the vote path. The cache is derived
+// from the database and checked against project_stats.fitted_at on every
+// vote, so several processes never disagree for longer than one vote.
+type engine struct {
+	Interval time.Duration
+	MinVotes int64
+
+	mu     sync.Mutex
+	models map[int64]*fitModel
+}
+
+// engines maps a Server to its engine. Server's struct lives in server.go,
+// which another file owner keeps; a field there would be the tidier home.
+var engines sync.Map
+
+func (s *Server) engine() *engine {
+	if e, ok := engines.Load(s); ok {
+		return e.(*engine)
+	}
+	e, _ := engines.LoadOrStore(s, &engine{Interval: DefaultEngineInterval, MinVotes: DefaultEngineVotes, models: map[int64]*fitModel{}})
+	return e.(*engine)
+}
+
+// SetEngineSchedule changes how often the refit loop runs (for serve flags
+// and tests); zero values keep the defaults.
+func (s *Server) SetEngineSchedule(interval time.Duration, minVotes int64) {
+	e := s.engine()
+	if interval > 0 {
+		e.Interval = interval
+	}
+	if minVotes > 0 {
+		e.MinVotes = minVotes
+	}
+}
+
+// fitModel is a project's last fit as the vote path uses it.
+type fitModel struct {
+	fittedAt time.Time
+	k        int
+	index    map[int64]int // label id -> class
+	classes  []int64
+	prior    []float64
+	avg      []float64
+	matrix   map[int64][]float64 // labeller -> K x K, full or one-coin
+}
+
+// model returns the project's fit as of fittedAt, loading it when the
+// cache is older; nil when the fit has no usable matrices.
+func (e *engine) model(ctx context.Context, st *store.Store, projectID int64, fittedAt time.Time) (*fitModel, error) {
+	e.mu.Lock()
+	m := e.models[projectID]
+	e.mu.Unlock()
+	if m != nil && m.fittedAt.Equal(fittedAt) {
+		return m, nil
+	}
+	pm, err := st.ProjectModel(ctx, projectID)
+	if err != nil {
+		return nil, err
+	}
+	m = buildFitModel(pm)
+	e.mu.Lock()
+	e.models[projectID] = m
+	e.mu.Unlock()
+	return m, nil
+}
+
+func buildFitModel(pm store.ProjectModel) *fitModel {
+	m := &fitModel{fittedAt: pm.FittedAt, matrix: map[int64][]float64{}}
+	for _, lm := range pm.Models {
+		if m.classes == nil && len(lm.Classes) > 0 {
+			m.classes, m.prior = lm.Classes, lm.Prior
+		}
+	}
+	m.k = len(m.classes)
+	if m.k == 0 {
+		return m
+	}
+	m.index = make(map[int64]int, m.k)
+	for i, c := range m.classes {
+		m.index[c] = i
+	}
+	m.avg = make([]float64, m.k*m.k)
+	total := 0.0
+	for l, lm := range pm.Models {
+		if len(lm.Matrix) != m.k*m.k || !slices.Equal(lm.Classes, m.classes) {
+			continue
+		}
+		m.matrix[l] = lm.Matrix
+		w := float64(max(pm.Votes[l], 1))
+		total += w
+		for i, x := range lm.Matrix {
+			m.avg[i] += w * x
+		}
+	}
+	if total == 0 {
+		m.avg = oneCoin(m.k, defaultAccuracy)
+	} else {
+		for i := range m.avg {
+			m.avg[i] /= total
+		}
+	}
+	return m
+}
+
+// oneCoin is a K x K matrix for a labeller right with chance acc and
+// otherwise wrong uniformly.
+func oneCoin(k int, acc float64) []float64 {
+	out := make([]float64, k*k)
+	off := (1 - acc) / float64(max(k-1, 1))
+	for t := range k {
+		for j := range k {
+			out[t*k+j] = off
+		}
+		out[t*k+t] = acc
+	}
+	if k == 1 {
+		out[0] = 1
+	}
+	return out
+}
+
+// decider returns the vote path's Decider for a project: the item's
+// posterior from the last fit's confusion matrices and priors, or majority
+// vote before the first fit, then its status under the vote policy.
+func (s *Server) decider(p *store.Project) store.Decider {
+	return func(ctx context.Context, iv store.ItemVotes) (store.ItemUpdate, error) {
+		pol := agreement.VotePolicy{MinVotes: p.Policy.MinVotes, MaxVotes: p.Policy.MaxVotes, Target: p.Policy.ConfidenceTarget}
+		if iv.VoteCount == 0 {
+			return store.ItemUpdate{Status: "unstarted", VotesNeeded: max(p.Policy.MinVotes, 1)}, nil
+		}
+		if !iv.FittedAt.IsZero() {
+			m, err := s.engine().model(ctx, s.store, p.ID, iv.FittedAt)
+			if err != nil && !errors.Is(err, store.ErrNotFound) {
+				return store.ItemUpdate{}, err
+			}
+			if m != nil && m.k > 0 {
+				if u, ok := m.decide(iv, pol); ok {
+					return u, nil
+				}
+			}
+		}
+		return majorityDecision(iv, pol), nil
+	}
+}
+
+// decide computes the item's Dawid-Skene posterior with the fitted
+// matrices held fixed. ok is false when a vote uses a label the fit did not
+// know, and majority vote must do.
+func (m *fitModel) decide(iv store.ItemVotes, pol agreement.VotePolicy) (store.ItemUpdate, bool) {
+	k := m.k
+	logp := make([]float64, k)
+	for t := range k {
+		logp[t] = math.Log(max(m.prior[t], 1e-300))
+	}
+	for i, label := range iv.Labels {
+		j, ok := m.index[label]
+		if !ok {
+			return store.ItemUpdate{}, false
+		}
+		mat := m.matrix[iv.Labellers[i]]
+		if mat == nil {
+			mat = m.avg
+		}
+		for t := range k {
+			logp[t] += math.Log(max(mat[t*k+j], 1e-300))
+		}
+	}
+	post := softmax(logp)
+	c := &agreement.Consensus{NumItems: 1, NumClasses: k, Posterior: post, Votes: []int32{int32(iv.VoteCount)}}
+	best := argmaxF(post)
+	c.Label, c.Confidence = []int32{int32(best)}, []float64{post[best]}
+	plans, err := pol.Plan(c, m.avg)
+	if err != nil {
+		return store.ItemUpdate{}, false
+	}
+	row := sparsePosterior(m.classes, post)
+	row.Method, row.VoteCount = store.MethodDS, iv.VoteCount
+	return planUpdate(plans[0], row), true
+}
+
+// majorityDecision is the rule before the first fit: the top share of the
+// votes stands in for confidence, so an item is done once MinVotes votes
+// agree to the target share (unanimous at the default 0.95).
+func majorityDecision(iv store.ItemVotes, pol agreement.VotePolicy) store.ItemUpdate {
+	counts := map[int64]int{}
+	var order []int64
+	for _, l := range iv.Labels {
+		if counts[l] == 0 {
+			order = append(order, l)
+		}
+		counts[l]++
+	}
+	slices.Sort(order)
+	post := make([]float64, len(order))
+	top, tied := 0, false
+	for i, l := range order {
+		post[i] = float64(counts[l]) / float64(iv.VoteCount)
+		if counts[l] > counts[order[top]] {
+			top, tied = i, false
+		} else if i != top && counts[l] == counts[order[top]] {
+			tied = true
+		}
+	}
+	row := &store.ConsensusRow{Confidence: post[top], Method: store.MethodMajority, VoteCount: iv.VoteCount,
+		Tied: tied, PosteriorLabels: order, Posterior: post}
+	if !tied {
+		row.LabelID = &order[top]
+	}
+	pl := agreement.ItemPlan{Votes: iv.VoteCount, Confidence: post[top]}
+	switch {
+	case pl.Votes >= pol.MinVotes && pl.Confidence >= pol.Target && !tied:
+		pl.Status = agreement.StatusDone
+	case pl.Votes >= pol.MaxVotes:
+		pl.Status = agreement.StatusReview
+	default:
+		pl.Status = agreement.StatusNeedsVotes
+		pl.MoreVotes = max(pol.MinVotes-pl.Votes, 1)
+	}
+	return planUpdate(pl, row)
+}
+
+// planUpdate turns a plan into the item's stored state. The priority is
+// the expected gain of one more vote, with lower confidence breaking ties
+// as agreement.Queue does.
+func planUpdate(pl agreement.ItemPlan, row *store.ConsensusRow) store.ItemUpdate {
+	u := store.ItemUpdate{Status: pl.Status.String(), Consensus: row}
+	if pl.Status == agreement.StatusNeedsVotes {
+		u.VotesNeeded = max(pl.MoreVotes, 1)
+		u.Priority = priorityOf(pl)
+	}
+	return u
+}
+
+func priorityOf(pl agreement.ItemPlan) float64 { return pl.Gain + 1e-3*(1-pl.Confidence) }
+
+// sparsePosterior keeps the classes with a posterior worth storing.
+func sparsePosterior(classes []int64, post []float64) *store.ConsensusRow {
+	best := argmaxF(post)
+	row := &store.ConsensusRow{LabelID: &classes[best], Confidence: post[best]}
+	for i, p := range post {
+		if p >= 1e-4 {
+			row.PosteriorLabels = append(row.PosteriorLabels, classes[i])
+			row.Posterior = append(row.Posterior, p)
+		}
+	}
+	return row
+}
+
+func softmax(logp []float64) []float64 {
+	mx := math.Inf(-1)
+	for _, x := range logp {
+		mx = max(mx, x)
+	}
+	out := make([]float64, len(logp))
+	sum := 0.0
+	for i, x := range logp {
+		out[i] = math.Exp(x - mx)
+		sum += out[i]
+	}
+	for i := range out {
+		out[i] /= sum
+	}
+	return out
+}
+
+func argmaxF(xs []float64) int {
+	best := 0
+	for i, x := range xs {
+		if x > xs[best] {
+			best = i
+		}
+	}
+	return best
+}
+
+// startEngine runs the refit loop until ctx ends and returns a channel
+// closed when it has stopped.
+func (s *Server) startEngine(ctx context.Context) <-chan struct{} {
+	done := make(chan struct{})
+	go func() {
+		defer close(done)
+		e := s.engine()
+		t := time.NewTicker(e.Interval)
+		defer t.Stop()
+		for {
+			select {
+			case <-ctx.Done():
+				return
+			case <-t.C:
+			}
+			s.refitDue(ctx)
+		}
+	}()
+	return done
+}
+
+// waitFor blocks until ch is closed.
+func waitFor(ch <-chan struct{}) { <-ch }
+
+// refitDue refits every project whose schedule says so.
+func (s *Server) refitDue(ctx context.Context) {
+	e := s.engine()
+	states, err := s.store.FitStates(ctx)
+	if err != nil {
+		if ctx.Err() == nil {
+			s.log.Warn("engine: list projects", "err", err)
+		}
+		return
+	}
+	for _, st := range states {
+		if !e.due(st, s.now()) {
+			continue
+		}
+		if err := s.RefitProject(ctx, st.ProjectID); err != nil && !errors.Is(err, ErrRefitBusy) && ctx.Err() == nil {
+			s.log.Error("engine: refit", "project", st.ProjectID, "err", err)
+		}
+	}
+}
+
+func (e *engine) due(st store.FitState, now time.Time) bool {
+	if st.NewVotes == 0 {
+		return false
+	}
+	if st.FittedAt == nil {
+		return true
+	}
+	age := now.Sub(*st.FittedAt)
+	return age >= e.Interval && st.NewVotes >= e.MinVotes || age >= engineStaleAfter*e.Interval
+}
+
+// RefitProject fits Dawid-Skene to every vote of the project with known
+// answers held fixed, and writes the items' consensus, status, votes needed
+// and priority, the labellers' figures (pausing those clearly below the
+// accuracy floor) and the project summary. Whichever process holds the
+// project's advisory lock does the work; a second caller gets ErrRefitBusy.
+// Voting goes on meanwhile: items that got a vote during the fit keep the
+// vote path's figures.
+func (s *Server) RefitProject(ctx context.Context, projectID int64) error {
+	ran, err := s.store.WithProjectLock(ctx, projectID, func(ctx context.Context) error {
+		return s.refit(ctx, projectID)
+	})
+	if err != nil {
+		return fmt.Errorf("refit project %d: %w", projectID, err)
+	}
+	if !ran {
+		return ErrRefitBusy
+	}
+	return nil
+}
+
+func idName(id int64) string { return strconv.FormatInt(id, 10) }

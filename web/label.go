@@ -1,0 +1,317 @@
+package web
+
+import (
+	"encoding/json"
+	"errors"
+	"fmt"
+	"math/rand/v2"
+	"net/http"
+	"regexp"
+	"strconv"
+	"time"
+
+	"github.com/concord-labs/concord/store"
+)
+
+// undoWindow is how long after a vote its labeller may take it back.
+const undoWindow = 10 * time.Second
+
+// maxHeld bounds the items a client may say it holds (its queue and its
+// recent skips), so a request cannot make the claim query arbitrarily slow.
+const maxHeld = 50
+
+// itemJSON is all a labeller learns about an item: never its status,
+// votes, consensus or whether it is a gold item.
+type itemJSON struct {
+	ID     int64  `json:"id"`
+	Image  string `json:"image"`
+	Width  int    `json:"width"`
+	Height int    `json:"height"`
+}
+
+func itemView(p *store.Project, it store.Item) *itemJSON {
+	return &itemJSON{ID: it.ID, Image: "/p/" + p.Slug + "/items/" + strconv.FormatInt(it.ID, 10) + "/image",
+		Width: it.Width, Height: it.Height}
+}
+
+// labelResponse is the answer to every labelling API call.
+type labelResponse struct {
+	Next     *itemJSON     `json:"next"`               // a newly claimed item, or null when none is left
+	Item     *itemJSON     `json:"item,omitempty"`     // the item an undo gave back
+	Tally    *store.Tally  `json:"tally,omitempty"`    // the labeller's work today
+	Feedback *goldFeedback `json:"feedback,omitempty"` // after a gold item, if the project shows it
+	Repeat   bool          `json:"repeat,omitempty"`   // the vote id was stored before
+}
+
+type goldFeedback struct {
+	Correct  bool   `json:"correct"`
+	Expected string `json:"expected"`
+}
+
+// checkCanLabel refuses labellers whose membership is paused or blocked,
+// with the reason the lead or the engine gave.
+func (s *Server) checkCanLabel(r *http.Request, p *store.Project) error {
+	u := userFrom(r.Context())
+	if u.Role == store.RoleLead {
+		return nil
+	}
+	m, err := s.store.MemberOf(r.Context(), p.ID, u.ID)
+	if err != nil {
+		return err
+	}
+	switch m.Status {
+	case store.StatusActive:
+		return nil
+	case store.StatusPaused:
+		msg := "Your work on this project is paused."
+		if m.StatusReason != "" {
+			msg += " " + m.StatusReason
+		}
+		return &userError{http.StatusForbidden, msg}
+	default:
+		return &userError{http.StatusForbidden, "You can no longer label in this project. Ask your project lead."}
+	}
+}
+
+// claimFor claims the next item, drawing against the gold rate first.
+func (s *Server) claimFor(r *http.Request, p *store.Project, exclude []int64) (*itemJSON, error) {
+	u := userFrom(r.Context())
+	req := store.ClaimRequest{ProjectID: p.ID, LabellerID: u.ID, Exclude: exclude,
+		Gold: rand.Float64() < p.Policy.GoldRate, GoldSeed: rand.Int64(),
+		Lifetime: time.Duration(p.Policy.ClaimSeconds) * time.Second}
+	c, err := s.store.ClaimNext(r.Context(), req)
+	if errors.Is(err, store.ErrNotFound) {
+		return nil, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	return itemView(p, c.Item), nil
+}
+
+func (s *Server) tally(r *http.Request, p *store.Project) (*store.Tally, error) {
+	now := s.now()
+	y, m, d := now.Date()
+	t, err := s.store.VoteTally(r.Context(), p.ID, userFrom(r.Context()).ID, time.Date(y, m, d, 0, 0, 0, 0, now.Location()))
+	return &t, err
+}
+
+// decodeJSON reads a small JSON body into v, or says what is wrong.
+func decodeJSON(r *http.Request, v any) error {
+	dec := json.NewDecoder(http.MaxBytesReader(nil, r.Body, 64<<10))
+	dec.DisallowUnknownFields()
+	if err := dec.Decode(v); err != nil {
+		return badRequest("The request body is not valid JSON for this call: " + err.Error())
+	}
+	return nil
+}
+
+func checkHeld(ids []int64) error {
+	if len(ids) > maxHeld {
+		return badRequest(fmt.Sprintf("exclude: at most %d items, got %d", maxHeld, len(ids)))
+	}
+	return nil
+}
+
+// claimNext hands out the next item: POST {"exclude": [ids held]}.
+func (s *Server) claimNext(w http.ResponseWriter, r *http.Request) error {
+	p := projectFrom(r.Context())
+	var req struct {
+		Exclude []int64 `json:"exclude"`
+	}
+	if err := decodeJSON(r, &req); err != nil {
+		return err
+	}
+	if err := checkHeld(req.Exclude); err != nil {
+		return err
+	}
+	if err := s.checkCanLabel(r, p); err != nil {
+		return err
+	}
+	next, err := s.claimFor(r, p, req.Exclude)
+	if err != nil {
+		return err
+	}
+	t, err := s.tally(r, p)
+	if err != nil {
+		return err
+	}
+	return writeJSON(w, http.StatusOK, labelResponse{Next: next, Tally: t})
+}
+
+var uuidPattern = regexp.MustCompile(`^[0-9a-fA-F]{8}-[0-9a-fA-F]{4}-[0-9a-fA-F]{4}-[0-9a-fA-F]{4}-[0-9a-fA-F]{12}$`)
+
+// voteRequest is one vote. Label is a label key, or null for "can't tell".
+type voteRequest struct {
+	ID      string   `json:"id"`
+	Item    int64    `json:"item"`
+	Label   *string  `json:"label"`
+	Seconds float64  `json:"seconds"`
+	Exclude []int64  `json:"exclude"`
+}
+
+// createVote records a vote and claims the next item in one round trip.
+func (s *Server) createVote(w http.ResponseWriter, r *http.Request) error {
+	ctx := r.Context()
+	p := projectFrom(ctx)
+	u := userFrom(ctx)
+	var req voteRequest
+	if err := decodeJSON(r, &req); err != nil {
+		return err
+	}
+	switch {
+	case !uuidPattern.MatchString(req.ID):
+		return badRequest("id: a vote needs a UUID made by the client, like 7b0c1a1e-0000-4000-8000-000000000001")
+	case req.Item <= 0:
+		return badRequest("item: missing")
+	case req.Seconds < 0 || req.Seconds > 86400:
+		return badRequest("seconds: must be between 0 and 86400")
+	}
+	if err := checkHeld(req.Exclude); err != nil {
+		return err
+	}
+	if err := s.checkCanLabel(r, p); err != nil {
+		return err
+	}
+	vote := store.NewVote{ID: req.ID, ProjectID: p.ID, ItemID: req.Item, LabellerID: u.ID, Seconds: req.Seconds}
+	if req.Label != nil {
+		l, err := s.store.LabelByKey(ctx, p.ID, *req.Label)
+		if errors.Is(err, store.ErrNotFound) {
+			return badRequest("label: no label with this key in the project")
+		} else if err != nil {
+			return err
+		}
+		vote.LabelID = &l.ID
+	}
+	res, err := s.store.RecordVote(ctx, vote, s.decider(p))
+	if errors.Is(err, store.ErrNoClaim) {
+		return &userError{http.StatusConflict, "This item is no longer yours to vote on; it may have expired or been voted on already."}
+	}
+	if errors.Is(err, store.ErrConflict) {
+		return &userError{http.StatusConflict, "You have voted on this item already."}
+	}
+	if err != nil {
+		return err
+	}
+	out := labelResponse{Repeat: res.Duplicate}
+	if p.Policy.GoldFeedback && res.GoldLabel != nil {
+		if out.Feedback, err = s.feedback(r, p, *res.GoldLabel, vote.LabelID); err != nil {
+			return err
+		}
+	}
+	if out.Next, err = s.claimFor(r, p, append(req.Exclude, req.Item)); err != nil {
+		return err
+	}
+	if out.Tally, err = s.tally(r, p); err != nil {
+		return err
+	}
+	return writeJSON(w, http.StatusOK, out)
+}
+
+func (s *Server) feedback(r *http.Request, p *store.Project, gold int64, voted *int64) (*goldFeedback, error) {
+	labels, err := s.store.Labels(r.Context(), p.ID)
+	if err != nil {
+		return nil, err
+	}
+	fb := &goldFeedback{Correct: voted != nil && *voted == gold}
+	for _, l := range labels {
+		if l.ID == gold {
+			fb.Expected = l.Name
+		}
+	}
+	return fb, nil
+}
+
+// undoVote takes back the labeller's last vote if it is recent enough and
+// hands its item back.
+func (s *Server) undoVote(w http.ResponseWriter, r *http.Request) error {
+	p := projectFrom(r.Context())
+	if err := s.checkCanLabel(r, p); err != nil {
+		return err
+	}
+	it, err := s.store.UndoLastVote(r.Context(), p.ID, userFrom(r.Context()).ID, undoWindow,
+		time.Duration(p.Policy.ClaimSeconds)*time.Second, s.decider(p))
+	if errors.Is(err, store.ErrNotFound) {
+		return &userError{http.StatusConflict, fmt.Sprintf("Nothing to undo: a vote can be taken back for %d seconds.", int(undoWindow.Seconds()))}
+	}
+	if err != nil {
+		return err
+	}
+	t, err := s.tally(r, p)
+	if err != nil {
+		return err
+	}
+	return writeJSON(w, http.StatusOK, labelResponse{Item: itemView(p, it), Tally: t})
+}
+
+// skipItem gives an item back and claims another: POST {"item": id, "exclude": [...]}.
+func (s *Server) skipItem(w http.ResponseWriter, r *http.Request) error {
+	p := projectFrom(r.Context())
+	var req struct {
+		Item    int64   `json:"item"`
+		Exclude []int64 `json:"exclude"`
+	}
+	if err := decodeJSON(r, &req); err != nil {
+		return err
+	}
+	if err := checkHeld(req.Exclude); err != nil {
+		return err
+	}
+	if err := s.checkCanLabel(r, p); err != nil {
+		return err
+	}
+	if err := s.store.ReleaseClaim(r.Context(), p.ID, userFrom(r.Context()).ID, req.Item); err != nil {
+		return err
+	}
+	next, err := s.claimFor(r, p, append(req.Exclude, req.Item))
+	if err != nil {
+		return err
+	}
+	return writeJSON(w, http.StatusOK, labelResponse{Next: next})
+}
+
+// showLabel renders the labelling screen.
+func (s *Server) showLabel(w http.ResponseWriter, r *http.Request) error {
+	p := projectFrom(r.Context())
+	u := userFrom(r.Context())
+	labels, err := s.store.Labels(r.Context(), p.ID)
+	if err != nil {
+		return err
+	}
+	t, err := s.tally(r, p)
+	if err != nil {
+		return err
+	}
+	blocked := ""
+	if err := s.checkCanLabel(r, p); err != nil {
+		var ue *userError
+		if !errors.As(err, &ue) {
+			return err
+		}
+		blocked = ue.msg
+	}
+	data := labelScreenData{Project: p.Slug, UndoSeconds: int(undoWindow.Seconds()), Tally: *t}
+	for _, l := range labels {
+		data.Labels = append(data.Labels, labelJSON{ID: l.ID, Key: l.Key, Name: l.Name, Description: l.Description,
+			Parent: l.ParentID, Leaf: l.IsLeaf})
+	}
+	return s.render(w, r, http.StatusOK, labelPage(u, p, data, blocked))
+}
+
+// labelScreenData goes to the script as a JSON block (not executed, so the
+// CSP's script-src 'self' allows it).
+type labelScreenData struct {
+	Project     string      `json:"project"`
+	UndoSeconds int         `json:"undo_seconds"`
+	Tally       store.Tally `json:"tally"`
+	Labels      []labelJSON `json:"labels"`
+}
+
+type labelJSON struct {
+	ID          int64  `json:"id"`
+	Key         string `json:"key"`
+	Name        string `json:"name"`
+	Description string `json:"description"`
+	Parent      *int64 `json:"parent"`
+	Leaf        bool   `json:"leaf"`
+}

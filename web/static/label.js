@@ -1,0 +1,262 @@
+// Concord labelling screen. Plain script, no framework: it keeps two
+// claimed items with their images loaded, so after a vote the next image is
+// already there; each vote carries a UUID made here, so a retry after a lost
+// answer is stored once.
+(function () {
+  "use strict";
+  var data = JSON.parse(document.getElementById("label-data").textContent);
+  var api = "/api/p/" + encodeURIComponent(data.project);
+  var $ = function (id) { return document.getElementById(id); };
+  var img = $("lab-image"), choicesEl = $("lab-choices"), pathEl = $("lab-path"),
+    hintEl = $("lab-hint"), statusEl = $("lab-status"), search = $("lab-search");
+
+  // ---- the label tree ----
+  var byId = {}, kids = { root: [] };
+  data.labels.forEach(function (l) {
+    byId[l.id] = l;
+    kids[l.id] = [];
+  });
+  data.labels.forEach(function (l) {
+    kids[l.parent == null ? "root" : l.parent].push(l);
+  });
+  var leaves = data.labels.filter(function (l) { return l.leaf; });
+  function pathOf(l) {
+    var names = [];
+    for (var n = l; n; n = n.parent == null ? null : byId[n.parent]) names.unshift(n.name);
+    return names.join(" › ");
+  }
+
+  // A level shows at most nine choices; a longer list is cut into groups
+  // of consecutive labels, each group a choice of its own.
+  function fit(list) {
+    if (list.length <= 9) return list;
+    var size = Math.ceil(list.length / 9), out = [];
+    for (var i = 0; i < list.length; i += size) {
+      var part = list.slice(i, i + size);
+      out.push({ group: fit(part), name: part[0].name + " … " + part[part.length - 1].name });
+    }
+    return fit(out);
+  }
+
+  // stack holds the levels walked into: {node (a label or null), list}.
+  var stack = [];
+  function top() { return stack[stack.length - 1]; }
+  function rootLevel() {
+    return { node: null, list: fit(leaves.length <= 9 ? leaves : kids.root), title: "All labels" };
+  }
+  function enter(choice) {
+    if (choice.group) {
+      stack.push({ node: top().node, list: choice.group, title: choice.name });
+    } else {
+      stack.push({ node: choice, list: fit(kids[choice.id]), title: pathOf(choice) });
+    }
+    draw();
+  }
+  function up() {
+    if (search.value) { search.value = ""; draw(); return; }
+    if (stack.length > 1) { stack.pop(); draw(); }
+  }
+  function reset() { search.value = ""; stack = [rootLevel()]; draw(); }
+
+  function matches() {
+    var q = search.value.trim().toLowerCase();
+    return data.labels.filter(function (l) {
+      return l.name.toLowerCase().indexOf(q) >= 0 || l.key.indexOf(q) >= 0 ||
+        l.description.toLowerCase().indexOf(q) >= 0;
+    }).slice(0, 9);
+  }
+  function current() { return search.value.trim() ? matches() : top().list; }
+
+  function draw() {
+    var list = current();
+    choicesEl.textContent = "";
+    list.forEach(function (c, i) {
+      var li = document.createElement("li"), b = document.createElement("button");
+      b.type = "button";
+      b.className = "lab-choice" + (c.group || (c.id && !c.leaf && !search.value) ? " lab-group" : "");
+      var k = document.createElement("kbd");
+      k.textContent = String(i + 1);
+      var name = document.createElement("span");
+      name.className = "lab-name";
+      name.textContent = search.value.trim() ? pathOf(c) : c.name;
+      b.appendChild(k);
+      b.appendChild(name);
+      if (c.description) {
+        b.title = c.description;
+        var d = document.createElement("span");
+        d.className = "lab-desc";
+        d.textContent = c.description;
+        b.appendChild(d);
+      }
+      b.addEventListener("click", function () { pick(c); });
+      b.addEventListener("focus", function () { hint(c); });
+      b.addEventListener("mouseenter", function () { hint(c); });
+      li.appendChild(b);
+      choicesEl.appendChild(li);
+    });
+    var t = top();
+    pathEl.textContent = search.value.trim() ? "Search results" : t.title;
+    hintEl.textContent = t.node && !search.value.trim() ? "Enter: vote “" + t.node.name + "” if unsure of the detail. Escape: back." : "";
+  }
+  function hint(c) {
+    if (c.description) hintEl.textContent = c.name + ": " + c.description;
+  }
+  function pick(c) {
+    if (c.group || (!search.value.trim() && !c.leaf && kids[c.id].length)) { enter(c); return; }
+    vote(c.key);
+  }
+
+  // ---- items: a queue of claimed items, the first one on screen ----
+  var queue = [], shownAt = 0, skipped = [], busy = false, undone = null;
+  function held() {
+    return queue.map(function (it) { return it.id; }).concat(skipped).slice(-50);
+  }
+  function preload(it) { var i = new Image(); i.src = it.image; it.pre = i; }
+  function show() {
+    var it = queue[0];
+    if (!it) {
+      img.hidden = true;
+      $("lab-empty").hidden = false;
+      return;
+    }
+    $("lab-empty").hidden = true;
+    img.hidden = false;
+    img.src = it.image;
+    img.width = it.width;
+    img.height = it.height;
+    shownAt = performance.now();
+    reset();
+  }
+  function add(it) {
+    if (!it || queue.some(function (q) { return q.id === it.id; })) return;
+    preload(it);
+    queue.push(it);
+    if (queue.length === 1) show();
+  }
+
+  function say(msg) { statusEl.textContent = msg; }
+  function tally(t) {
+    if (!t) return;
+    $("lab-votes").textContent = String(t.votes);
+    var m = Math.round(t.seconds / 60);
+    $("lab-time").textContent = Math.floor(m / 60) + ":" + ("0" + (m % 60)).slice(-2);
+  }
+
+  // post sends JSON and retries network failures (not refusals) a few
+  // times: the server makes retries safe.
+  function post(path, body, tries) {
+    tries = tries || 3;
+    return fetch(api + path, {
+      method: "POST", credentials: "same-origin",
+      headers: { "Content-Type": "application/json", "Accept": "application/json" },
+      body: JSON.stringify(body)
+    }).then(function (r) {
+      return r.json().then(function (j) {
+        if (!r.ok) throw { refused: true, msg: j.error || ("Error " + r.status) };
+        return j;
+      });
+    }, function (e) {
+      if (tries > 1) {
+        return new Promise(function (ok) { setTimeout(ok, 400); }).then(function () { return post(path, body, tries - 1); });
+      }
+      throw { msg: "The server cannot be reached; check your connection and try again." };
+    });
+  }
+  function fail(e) { say(e.msg || String(e)); }
+
+  function fill() {
+    if (queue.length >= 2 || busy) return Promise.resolve();
+    return post("/next", { exclude: held() }).then(function (j) {
+      tally(j.tally);
+      if (j.next) { add(j.next); return fill(); }
+      if (!queue.length) show();
+    }, fail);
+  }
+
+  function uuid() {
+    if (window.crypto && crypto.randomUUID) return crypto.randomUUID();
+    var b = crypto.getRandomValues(new Uint8Array(16)), h = [];
+    b[6] = (b[6] & 15) | 64;
+    b[8] = (b[8] & 63) | 128;
+    for (var i = 0; i < 16; i++) h.push((b[i] + 256).toString(16).slice(1));
+    return h.slice(0, 4).join("") + "-" + h.slice(4, 6).join("") + "-" + h.slice(6, 8).join("") + "-" +
+      h.slice(8, 10).join("") + "-" + h.slice(10).join("");
+  }
+
+  function vote(key) {
+    var it = queue[0];
+    if (!it) return;
+    var secs = Math.min((performance.now() - shownAt) / 1000, 86400);
+    queue.shift();
+    var body = { id: uuid(), item: it.id, label: key, seconds: Math.round(secs * 10) / 10, exclude: held() };
+    show();
+    say(key == null ? "Saved: can't tell." : "Saved: " + byKey(key) + ".");
+    post("/votes", body).then(function (j) {
+      tally(j.tally);
+      if (j.feedback) {
+        say(j.feedback.correct ? "Check item: right, it is " + j.feedback.expected + "." :
+          "Check item: the expected label was " + j.feedback.expected + ".");
+      }
+      add(j.next);
+      return fill();
+    }, fail);
+  }
+  function byKey(k) {
+    for (var i = 0; i < data.labels.length; i++) if (data.labels[i].key === k) return data.labels[i].name;
+    return k;
+  }
+
+  function skip() {
+    var it = queue.shift();
+    if (!it) return;
+    skipped.push(it.id);
+    show();
+    say("Skipped.");
+    post("/skip", { item: it.id, exclude: held() }).then(function (j) { add(j.next); return fill(); }, fail);
+  }
+
+  function undo() {
+    post("/undo", {}).then(function (j) {
+      tally(j.tally);
+      if (!j.item) return;
+      queue = queue.filter(function (q) { return q.id !== j.item.id; });
+      preload(j.item);
+      queue.unshift(j.item);
+      show();
+      say("Vote taken back; label this image again.");
+    }, fail);
+  }
+
+  // ---- keys ----
+  document.addEventListener("keydown", function (e) {
+    if (e.ctrlKey || e.metaKey || e.altKey) return;
+    var inSearch = document.activeElement === search;
+    if (inSearch) {
+      if (e.key === "Escape") { e.preventDefault(); search.value = ""; search.blur(); draw(); }
+      else if (e.key === "Enter") { e.preventDefault(); var m = matches(); if (m.length) { search.blur(); vote(m[0].key); } }
+      else if (e.key === "ArrowDown") { e.preventDefault(); var f = choicesEl.querySelector("button"); if (f) f.focus(); }
+      return;
+    }
+    if (e.target && (e.target.tagName === "INPUT" || e.target.tagName === "TEXTAREA")) return;
+    var list = current();
+    if (e.key >= "1" && e.key <= "9") {
+      var c = list[Number(e.key) - 1];
+      if (c) { e.preventDefault(); pick(c); }
+    } else if (e.key === "0") { e.preventDefault(); vote(null); }
+    else if (e.key === "s" || e.key === "S") { e.preventDefault(); skip(); }
+    else if (e.key === "u" || e.key === "U" || e.key === "Backspace") { e.preventDefault(); undo(); }
+    else if (e.key === "/") { e.preventDefault(); search.focus(); }
+    else if (e.key === "Escape") { e.preventDefault(); up(); }
+    else if (e.key === "Enter" && top().node && document.activeElement.tagName !== "BUTTON") {
+      e.preventDefault(); vote(top().node.key);
+    }
+  });
+  search.addEventListener("input", draw);
+  $("lab-cant").addEventListener("click", function () { vote(null); });
+  $("lab-skip").addEventListener("click", skip);
+  $("lab-undo").addEventListener("click", undo);
+
+  tally(data.tally);
+  reset();
+  fill();
+})();
