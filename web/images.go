@@ -13,10 +13,14 @@ import (
 )
 
 // itemImage serves an item's original image.
-func (s *Server) itemImage(w http.ResponseWriter, r *http.Request) error { return s.serveItem(w, r, false) }
+func (s *Server) itemImage(w http.ResponseWriter, r *http.Request) error {
+	return s.serveItem(w, r, false)
+}
 
 // itemThumb serves an item's thumbnail (the original when it has none).
-func (s *Server) itemThumb(w http.ResponseWriter, r *http.Request) error { return s.serveItem(w, r, true) }
+func (s *Server) itemThumb(w http.ResponseWriter, r *http.Request) error {
+	return s.serveItem(w, r, true)
+}
 
 // serveItem streams an item's bytes from the image store. The blob key
 // comes from the item's row, never from the request, and the blob store

@@ -143,11 +143,11 @@ var uuidPattern = regexp.MustCompile(`^[0-9a-fA-F]{8}-[0-9a-fA-F]{4}-[0-9a-fA-F]
 
 // voteRequest is one vote. Label is a label key, or null for "can't tell".
 type voteRequest struct {
-	ID      string   `json:"id"`
-	Item    int64    `json:"item"`
-	Label   *string  `json:"label"`
-	Seconds float64  `json:"seconds"`
-	Exclude []int64  `json:"exclude"`
+	ID      string  `json:"id"`
+	Item    int64   `json:"item"`
+	Label   *string `json:"label"`
+	Seconds float64 `json:"seconds"`
+	Exclude []int64 `json:"exclude"`
 }
 
 // createVote records a vote and claims the next item in one round trip.

@@ -144,7 +144,6 @@ func nilIfEmpty(s string) any {
 
 func uuidN(n int) string { return fmt.Sprintf("00000000-0000-4000-8000-%012d", n) }
 
-
 func TestLabellingFlow(t *testing.T) {
 	e := newTestEnv(t)
 	p := e.project()
