@@ -1,13 +1,13 @@
 package dataset
 
 import (
+	"cmp"
 	"crypto/sha256"
 	"encoding/hex"
 	"encoding/json"
 	"fmt"
 	"regexp"
 	"slices"
-	"sort"
 	"strconv"
 	"strings"
 )
@@ -146,8 +146,12 @@ func BuildRelease(in ReleaseInput) (*Release, error) {
 	if err != nil {
 		return nil, err
 	}
-	items := slices.Clone(in.Items)
-	sort.Slice(items, func(a, b int) bool { return items[a].ID < items[b].ID })
+	items := in.Items
+	byID := func(a, b Candidate) int { return cmp.Compare(a.ID, b.ID) }
+	if !slices.IsSortedFunc(items, byID) {
+		items = slices.Clone(items)
+		slices.SortFunc(items, byID)
+	}
 	gi := make([]GroupItem, len(items))
 	for i, it := range items {
 		gi[i] = GroupItem{ID: it.ID, ClusterID: it.ClusterID, GroupKey: it.GroupKey}
@@ -264,7 +268,7 @@ func (rel *Release) sums() []byte {
 			es = append(es, entry{r.File, r.SHA256})
 		}
 	}
-	sort.Slice(es, func(a, b int) bool { return es[a].path < es[b].path })
+	slices.SortFunc(es, func(a, b entry) int { return strings.Compare(a.path, b.path) })
 	b := make([]byte, 0, len(es)*100)
 	for _, e := range es {
 		b = append(b, e.sum...)

@@ -127,25 +127,25 @@ func AssignSplits(items []GroupItem, seed int64, f Fractions, pins map[int64]Spl
 			}
 		}
 	}
-	key := map[int32]int64{}
-	pinned := map[int32]Split{}
+	// Indexed by a set's root: its smallest id, and its latest pinned split
+	// plus one (0: none pinned).
+	key := make([]int64, len(items))
+	pinned := make([]Split, len(items))
 	for i, it := range items {
 		r := uf.find(int32(i))
-		if k, ok := key[r]; !ok || it.ID < k {
+		if k := key[r]; k == 0 || it.ID < k {
 			key[r] = it.ID
 		}
-		if s, ok := pins[it.ID]; ok {
-			if p, had := pinned[r]; !had || s > p {
-				pinned[r] = s
-			}
+		if s, ok := pins[it.ID]; ok && s+1 > pinned[r] {
+			pinned[r] = s + 1
 		}
 	}
 	splits, groups = make([]Split, len(items)), make([]int64, len(items))
 	for i := range items {
 		r := uf.find(int32(i))
 		groups[i] = key[r]
-		if s, ok := pinned[r]; ok {
-			splits[i] = s
+		if pinned[r] > 0 {
+			splits[i] = pinned[r] - 1
 		} else {
 			splits[i] = GroupSplit(seed, key[r], f)
 		}
