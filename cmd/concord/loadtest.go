@@ -403,14 +403,7 @@ func runLoad(ctx context.Context, cfg loadConfig, accounts []loadAccount) (*load
 	defer transport.CloseIdleConnections()
 	clients := make([]*labellerClient, len(accounts))
 	for i, a := range accounts {
-		jar, _ := cookiejar.New(nil)
-		clients[i] = &labellerClient{
-			base:    strings.TrimRight(cfg.baseURL, "/"),
-			project: cfg.project,
-			account: a,
-			http:    &http.Client{Jar: jar, Transport: transport, Timeout: cfg.timeout},
-			rng:     mrand.New(mrand.NewPCG(uint64(i)+1, uint64(time.Now().UnixNano()))),
-		}
+		clients[i] = newLabellerClient(cfg, a, i, transport)
 	}
 	// Log in before the clock starts: argon2id makes logins slow on purpose
 	// and they are not what the run measures.
@@ -423,12 +416,11 @@ func runLoad(ctx context.Context, cfg loadConfig, accounts []loadAccount) (*load
 	if err := errors.Join(loginErrs...); err != nil {
 		return nil, err
 	}
-	runCtx, cancel := context.WithTimeout(ctx, cfg.duration)
-	defer cancel()
 	results := make([]loadResult, len(clients))
 	start := time.Now()
+	deadline := start.Add(cfg.duration)
 	for i, c := range clients {
-		wg.Go(func() { c.work(runCtx, &results[i]) })
+		wg.Go(func() { c.work(ctx, deadline, &results[i]) })
 	}
 	wg.Wait()
 	total := &loadResult{labellers: len(clients), elapsed: time.Since(start), errors: map[string]int{}}
@@ -454,6 +446,19 @@ type labellerClient struct {
 	http          *http.Client
 	rng           *mrand.Rand
 	labels        []string // keys of the leaf labels, the choices shown for every item
+}
+
+// newLabellerClient makes the n-th labeller; all share one transport (the
+// connection pool) but each has its own cookie jar.
+func newLabellerClient(cfg loadConfig, a loadAccount, n int, transport http.RoundTripper) *labellerClient {
+	jar, _ := cookiejar.New(nil)
+	return &labellerClient{
+		base:    strings.TrimRight(cfg.baseURL, "/"),
+		project: cfg.project,
+		account: a,
+		http:    &http.Client{Jar: jar, Transport: transport, Timeout: cfg.timeout},
+		rng:     mrand.New(mrand.NewPCG(uint64(n)+1, uint64(time.Now().UnixNano()))),
+	}
 }
 
 // apiItem and apiAnswer are the parts of the labelling API's answers the
@@ -626,12 +631,16 @@ func (c *labellerClient) newVote(item int64) voteBody {
 // asking again, and a failed call before the next try.
 const noWorkPause = 50 * time.Millisecond
 
-// work labels until ctx ends: hold an item, vote on it, take the next one
-// from the vote's answer (or claim when it had none).
-func (c *labellerClient) work(ctx context.Context, res *loadResult) {
+// work labels until the deadline: hold an item, vote on it, take the next
+// one from the vote's answer (or claim when it had none). A call under way
+// at the deadline is finished, not cancelled, so every vote the server
+// stored is one the driver counted; only ctx (an interrupt) cuts calls off.
+func (c *labellerClient) work(ctx context.Context, deadline time.Time, res *loadResult) {
+	ctx, cancel := context.WithDeadline(ctx, deadline.Add(c.http.Timeout))
+	defer cancel()
 	var held *apiItem
 	var pendingVote time.Time // when the vote that left us without an item was sent
-	for ctx.Err() == nil {
+	for ctx.Err() == nil && time.Now().Before(deadline) {
 		if held == nil {
 			t0 := time.Now()
 			it, err := c.claim(ctx)
@@ -640,14 +649,14 @@ func (c *labellerClient) work(ctx context.Context, res *loadResult) {
 			}
 			if err != nil {
 				res.fail(err.(*callError).kind)
-				pause(ctx, noWorkPause)
+				pause(ctx, noWorkPause, deadline)
 				continue
 			}
 			res.claim.add(time.Since(t0))
 			if it == nil {
 				res.noWork++
 				pendingVote = time.Time{}
-				pause(ctx, noWorkPause)
+				pause(ctx, noWorkPause, deadline)
 				continue
 			}
 			if !pendingVote.IsZero() {
@@ -666,7 +675,7 @@ func (c *labellerClient) work(ctx context.Context, res *loadResult) {
 			res.fail(err.(*callError).kind)
 			// The claim may be gone (expired, or the server lost it): claim afresh.
 			held = nil
-			pause(ctx, noWorkPause)
+			pause(ctx, noWorkPause, deadline)
 			continue
 		}
 		d := time.Since(t0)
@@ -681,8 +690,9 @@ func (c *labellerClient) work(ctx context.Context, res *loadResult) {
 	}
 }
 
-func pause(ctx context.Context, d time.Duration) {
-	t := time.NewTimer(d)
+// pause waits d, but not past the deadline.
+func pause(ctx context.Context, d time.Duration, deadline time.Time) {
+	t := time.NewTimer(min(d, time.Until(deadline)))
 	defer t.Stop()
 	select {
 	case <-ctx.Done():
