@@ -70,8 +70,8 @@ var widthRatio = map[string]float64{
 // occluding object may have.
 func newDemoScene(rng *rand.Rand, label string, others []string) demoScene {
 	sc := demoScene{label: label, beltSeed: rng.Uint64(), phase: rng.Float64() * 40,
-		light: 0.2 + 0.5*rng.Float64(), lightAngle: rng.Float64() * 2 * math.Pi,
-		lamp: rng.Float64() * 0.5, lampX: rng.Float64() * demoWidth, lampY: rng.Float64() * demoHeight}
+		light: 0.3 + 0.7*rng.Float64(), lightAngle: rng.Float64() * 2 * math.Pi,
+		lamp: rng.Float64() * 0.9, lampX: rng.Float64() * demoWidth, lampY: rng.Float64() * demoHeight}
 	sc.main = randomPose(rng, label, 62+rng.Float64()*38)
 	// One frame in eight has the object half under a rail or off the edge.
 	if rng.IntN(8) == 0 {
@@ -147,7 +147,7 @@ type shapeFunc func(s, t float64) (rgb, float64)
 // draw renders the scene as one shot.
 func (sc demoScene) draw(sh demoShot) *image.RGBA {
 	c := &canvas{pix: make([]rgb, demoWidth*demoHeight)}
-	drawBelt(c, sc.beltSeed, sc.phase+sh.dx)
+	drawBelt(c, sc.beltSeed, sc.phase, sh.dx, sh.dy)
 	paintObject(c, sc.main, sh, shapeOf(sc.label, sc.main))
 	if sc.occluder != nil {
 		paintObject(c, *sc.occluder, sh, shapeOf(sc.otherKey, *sc.occluder))
@@ -156,11 +156,13 @@ func (sc demoScene) draw(sh demoShot) *image.RGBA {
 	return expose(c, sc, sh)
 }
 
-// drawBelt fills the frame with dark rubber: a fine grain and the slats
-// that cross the belt every 40 pixels.
-func drawBelt(c *canvas, seed uint64, phase float64) {
+// drawBelt fills the frame with dark rubber: a fine grain, the slats that
+// cross the belt every 40 pixels, and stains.
+func drawBelt(c *canvas, seed uint64, phase, dx, dy float64) {
 	base := rgb{58, 60, 63}
-	off := int(math.Floor(phase))
+	// The belt carries the objects, so a re-shot frame moves the slats and
+	// stains with them.
+	off := 40 - int(math.Floor(phase+dx))%40 + 40
 	for y := range demoHeight {
 		for x := range demoWidth {
 			v := 0.96 + 0.08*hashUnit(seed, uint64(x/2), uint64(y/2))
@@ -171,6 +173,22 @@ func drawBelt(c *canvas, seed uint64, phase float64) {
 				v *= 1.12
 			}
 			*c.at(x, y) = base.scale(v)
+		}
+	}
+	// Wet patches and grime: broad, soft stains that differ from frame to
+	// frame as the belt moves on.
+	for k := range uint64(4) {
+		sx, sy := hashUnit(seed, k, 10)*demoWidth+dx, hashUnit(seed, k, 11)*demoHeight+dy
+		rx, ry := 30+50*hashUnit(seed, k, 12), 25+40*hashUnit(seed, k, 13)
+		f := 0.55 + 0.9*hashUnit(seed, k, 14)
+		for y := max(0, int(sy-ry)); y < min(demoHeight, int(sy+ry)); y++ {
+			for x := max(0, int(sx-rx)); x < min(demoWidth, int(sx+rx)); x++ {
+				d := sq((float64(x)-sx)/rx) + sq((float64(y)-sy)/ry)
+				if d < 1 {
+					px := c.at(x, y)
+					*px = px.scale(1 + (f-1)*(1-d))
+				}
+			}
 		}
 	}
 }
