@@ -70,8 +70,18 @@ func TestEnvironmentSetsFlags(t *testing.T) {
 		t.Fatal(r.err)
 	}
 	r = runConcord(t, "", []string{"project", "list"})
-	if !strings.Contains(r.stdout, "env-flags    Env   4-9") || !strings.Contains(r.stdout, "env-flags-2  Env   2-7") {
-		t.Errorf("project list:\n%s", r.stdout)
+	// Columns are padded to the widest row, so compare the fields of each row.
+	rows := map[string][]string{}
+	for _, line := range strings.Split(r.stdout, "\n") {
+		if f := strings.Fields(line); len(f) > 0 {
+			rows[f[0]] = f
+		}
+	}
+	if f := rows["env-flags"]; len(f) < 3 || f[2] != "4-9" {
+		t.Errorf("env-flags row %q, want votes 4-9 from CONCORD_MIN_VOTES/CONCORD_MAX_VOTES", f)
+	}
+	if f := rows["env-flags-2"]; len(f) < 3 || f[2] != "2-7" {
+		t.Errorf("env-flags-2 row %q, want votes 2-7 (the flag wins over the environment)", f)
 	}
 	r = runConcord(t, "", []string{"project", "list"}, "CONCORD_MIN_VOTES=many")
 	var ue usageError
