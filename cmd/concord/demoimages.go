@@ -617,7 +617,7 @@ func demoFrameName(i int, ext string) string { return fmt.Sprintf("belt-%04d.%s"
 func demoFrameIndex(name string) (int, bool) {
 	var i int
 	var ext string
-	if n, err := fmt.Sscanf(name, "belt-%04d.%s", &i, &ext); err != nil || n != 2 || i < 0 {
+	if n, err := fmt.Sscanf(name, "belt-%d.%s", &i, &ext); err != nil || n != 2 || i < 0 {
 		return 0, false
 	}
 	return i, true
