@@ -21,6 +21,8 @@ import (
 	"testing"
 	"time"
 
+	"github.com/PuerkitoBio/goquery"
+
 	"github.com/concord-labs/concord/store"
 	"github.com/concord-labs/concord/store/blob"
 )
@@ -412,3 +414,34 @@ func TestLabellerFencedOut(t *testing.T) {
 
 // regexpParam fills URL parameters the replacer does not know.
 var regexpParam = regexp.MustCompile(`\{[a-z]+\}`)
+
+// TestLabelPageWeight keeps the labelling screen light: the page and the
+// files it loads, without the image, stay under 60 KB.
+func TestLabelPageWeight(t *testing.T) {
+	e := newTestEnv(t)
+	p := e.project()
+	c := e.login(e.member(p))
+	resp := c.get("/p/" + p.Slug + "/label")
+	b, _ := io.ReadAll(resp.Body)
+	total := len(b)
+	doc := page(t, &http.Response{StatusCode: resp.StatusCode, Body: io.NopCloser(bytes.NewReader(b)), Request: resp.Request}, http.StatusOK)
+	var assets []string
+	doc.Find("link[rel=stylesheet], script[src]").Each(func(_ int, s *goquery.Selection) {
+		assets = append(assets, s.AttrOr("href", s.AttrOr("src", "")))
+	})
+	if len(assets) != 3 {
+		t.Errorf("page loads %v, want two style sheets and one script", assets)
+	}
+	for _, a := range assets {
+		r := c.get(a)
+		n, _ := io.Copy(io.Discard, r.Body)
+		if r.StatusCode != http.StatusOK {
+			t.Errorf("%s: %d", a, r.StatusCode)
+		}
+		total += int(n)
+	}
+	if total >= 60<<10 {
+		t.Errorf("labelling page weighs %d bytes without the image, want under 60 KB", total)
+	}
+	t.Logf("labelling page: %d bytes with its scripts and styles", total)
+}

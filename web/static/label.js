@@ -251,7 +251,12 @@
       e.preventDefault(); vote(top().node.key);
     }
   });
-  search.addEventListener("input", draw);
+  search.addEventListener("input", function () {
+    // The "/" that opened the search is not part of it (some input paths
+    // deliver its character after focus moved).
+    if (search.value.charAt(0) === "/") search.value = search.value.slice(1);
+    draw();
+  });
   $("lab-cant").addEventListener("click", function () { vote(null); });
   $("lab-skip").addEventListener("click", skip);
   $("lab-undo").addEventListener("click", undo);
