@@ -414,3 +414,19 @@ func TestDemoVoteID(t *testing.T) {
 		t.Errorf("vote id %s is not a version-8 UUID", a)
 	}
 }
+
+// BenchmarkDemoFrame draws and encodes one sorting-line frame, the unit of
+// the demo's drawing time (600 of them, spread over every core).
+func BenchmarkDemoFrame(b *testing.B) {
+	d, err := newDemoCrowd(demoLeaves(b), 64, 1, demoCrowdSpec)
+	if err != nil {
+		b.Fatal(err)
+	}
+	i := 0
+	for b.Loop() {
+		if _, err := d.plan.renderFrame(i % 64); err != nil {
+			b.Fatal(err)
+		}
+		i++
+	}
+}
