@@ -106,6 +106,9 @@ type loadConfig struct {
 	labellers int
 	duration  time.Duration
 	timeout   time.Duration
+	// started, when not nil, is closed when every labeller has logged in
+	// and the clock starts (the crash test times its kill from it).
+	started chan struct{}
 }
 
 // loadAccount is one labeller's login.
@@ -393,6 +396,14 @@ func (rep loadReport) write(w io.Writer) error {
 
 // ---- the driver ----
 
+// loginsAtOnce bounds concurrent logins, and loginTimeout is their time
+// limit: each costs the server an argon2id hash, and a hundred at once
+// would only queue on its cores.
+const (
+	loginsAtOnce = 4
+	loginTimeout = time.Minute
+)
+
 // runLoad logs every account in, then has each work for cfg.duration:
 // claim, vote, claim the next, until the time is up or ctx ends.
 func runLoad(ctx context.Context, cfg loadConfig, accounts []loadAccount) (*loadResult, error) {
@@ -406,11 +417,16 @@ func runLoad(ctx context.Context, cfg loadConfig, accounts []loadAccount) (*load
 		clients[i] = newLabellerClient(cfg, a, i, transport)
 	}
 	// Log in before the clock starts: argon2id makes logins slow on purpose
-	// and they are not what the run measures.
+	// (and 64 MiB each), and they are not what the run measures.
 	var wg sync.WaitGroup
 	loginErrs := make([]error, len(clients))
+	slots := make(chan struct{}, loginsAtOnce)
 	for i, c := range clients {
-		wg.Go(func() { loginErrs[i] = c.login(ctx) })
+		wg.Go(func() {
+			slots <- struct{}{}
+			defer func() { <-slots }()
+			loginErrs[i] = c.login(ctx)
+		})
 	}
 	wg.Wait()
 	if err := errors.Join(loginErrs...); err != nil {
@@ -419,6 +435,9 @@ func runLoad(ctx context.Context, cfg loadConfig, accounts []loadAccount) (*load
 	results := make([]loadResult, len(clients))
 	start := time.Now()
 	deadline := start.Add(cfg.duration)
+	if cfg.started != nil {
+		close(cfg.started)
+	}
 	for i, c := range clients {
 		wg.Go(func() { c.work(ctx, deadline, &results[i]) })
 	}
@@ -495,7 +514,9 @@ func (c *labellerClient) login(ctx context.Context) error {
 	req.Header.Set("Content-Type", "application/x-www-form-urlencoded")
 	req.Header.Set("Accept", "application/json")
 	req.Header.Set("Sec-Fetch-Site", "same-origin")
-	resp, err := c.http.Do(req)
+	slow := *c.http
+	slow.Timeout = loginTimeout
+	resp, err := slow.Do(req)
 	if err != nil {
 		return fmt.Errorf("log in %s: %w", c.account.login, err)
 	}
@@ -635,8 +656,8 @@ const noWorkPause = 50 * time.Millisecond
 // one from the vote's answer (or claim when it had none). A call under way
 // at the deadline is finished, not cancelled, so every vote the server
 // stored is one the driver counted; only ctx (an interrupt) cuts calls off.
-func (c *labellerClient) work(ctx context.Context, deadline time.Time, res *loadResult) {
-	ctx, cancel := context.WithDeadline(ctx, deadline.Add(c.http.Timeout))
+func (c *labellerClient) work(outer context.Context, deadline time.Time, res *loadResult) {
+	ctx, cancel := context.WithDeadline(outer, deadline.Add(c.http.Timeout))
 	defer cancel()
 	var held *apiItem
 	var pendingVote time.Time // when the vote that left us without an item was sent
@@ -644,7 +665,7 @@ func (c *labellerClient) work(ctx context.Context, deadline time.Time, res *load
 		if held == nil {
 			t0 := time.Now()
 			it, err := c.claim(ctx)
-			if ctx.Err() != nil {
+			if outer.Err() != nil {
 				return
 			}
 			if err != nil {
@@ -669,7 +690,7 @@ func (c *labellerClient) work(ctx context.Context, deadline time.Time, res *load
 		t0 := time.Now()
 		ans, err := c.vote(ctx, v, res)
 		if err != nil {
-			if ctx.Err() != nil {
+			if outer.Err() != nil {
 				return
 			}
 			res.fail(err.(*callError).kind)
