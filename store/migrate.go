@@ -32,6 +32,15 @@ func newMigrate(dbURL string) (*migrate.Migrate, error) {
 	if u.Scheme == "postgres" || u.Scheme == "postgresql" {
 		u.Scheme = "pgx5"
 	}
+	// pgxpool's own settings mean nothing to the migration connection (and
+	// the server would reject them as unknown parameters).
+	q := u.Query()
+	for k := range q {
+		if strings.HasPrefix(k, "pool_") {
+			q.Del(k)
+		}
+	}
+	u.RawQuery = q.Encode()
 	m, err := migrate.NewWithSourceInstance("iofs", src, u.String())
 	if err != nil {
 		return nil, fmt.Errorf("open migrations: %w", err)

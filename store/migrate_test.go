@@ -2,6 +2,7 @@ package store_test
 
 import (
 	"context"
+	"strings"
 	"testing"
 
 	"github.com/concord-labs/concord/store"
@@ -39,5 +40,28 @@ func TestMigrationsUpDownUp(t *testing.T) {
 	}
 	if _, err := s.CreateProject(ctx, store.Project{Slug: "after-up-again", Name: "x"}); err != nil {
 		t.Fatalf("schema unusable after up/down/up: %v", err)
+	}
+}
+
+func TestPoolSettingsInURL(t *testing.T) {
+	ctx := context.Background()
+	u := testDB.URL + "?pool_max_conns=7"
+	if strings.Contains(testDB.URL, "?") {
+		u = testDB.URL + "&pool_max_conns=7"
+	}
+	if err := store.MigrateUp(u); err != nil {
+		t.Fatalf("migrate with a pool setting in the URL: %v", err)
+	}
+	s, err := store.Open(ctx, u)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer s.Close()
+	if got := s.Pool().Config().MaxConns; got != 7 {
+		t.Errorf("MaxConns = %d, want 7 from the URL", got)
+	}
+	d := testDB.Open(t)
+	if got := d.Pool().Config().MaxConns; got != store.DefaultMaxConns {
+		t.Errorf("default MaxConns = %d, want %d", got, store.DefaultMaxConns)
 	}
 }

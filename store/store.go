@@ -39,6 +39,11 @@ func (e *ConflictError) Error() string {
 
 func (e *ConflictError) Is(target error) bool { return target == ErrConflict }
 
+// DefaultMaxConns is the pool size when the database URL does not set
+// pool_max_conns. It stays well under PostgreSQL's default max_connections
+// (100) so several servers can share one database.
+const DefaultMaxConns = 20
+
 // Store is Concord's database.
 type Store struct {
 	pool *pgxpool.Pool
@@ -49,6 +54,12 @@ func Open(ctx context.Context, url string) (*Store, error) {
 	cfg, err := pgxpool.ParseConfig(url)
 	if err != nil {
 		return nil, fmt.Errorf("parse database URL: %w", err)
+	}
+	// pgxpool's default (the larger of 4 and the CPU count) queues a crowd of
+	// labellers behind four connections; a vote holds one for a few ms, so
+	// a larger pool keeps latency flat. pool_max_conns in the URL still wins.
+	if !strings.Contains(url, "pool_max_conns") {
+		cfg.MaxConns = DefaultMaxConns
 	}
 	pool, err := pgxpool.NewWithConfig(ctx, cfg)
 	if err != nil {
