@@ -2,7 +2,6 @@ package store
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"slices"
 	"time"
@@ -25,6 +24,8 @@ type ClaimRequest struct {
 	GoldSeed int64
 	// Lifetime is how long the claim lasts (the project's claim seconds).
 	Lifetime time.Duration
+	// TallySince starts the labeller's tally returned with the claim.
+	TallySince time.Time
 }
 
 // Claim is an item handed to a labeller until ExpiresAt.
@@ -33,6 +34,8 @@ type Claim struct {
 	ExpiresAt time.Time
 	// Resumed says the labeller held this claim already (a reload).
 	Resumed bool
+	// Tally is the labeller's work in the project since TallySince.
+	Tally Tally
 }
 
 // claimSQL picks and claims one item in one statement: a claim the
@@ -82,9 +85,12 @@ RETURNING item_id, expires_at, (SELECT how FROM chosen)`
 // READ COMMITTED the claim statement's snapshot is taken before it locks
 // the item row, so a claim committed by another labeller in between is
 // invisible to it; this second look, made while the row lock is still held,
-// sees every claim that could compete for the same slot.
+// sees every claim that could compete for the same slot. It also returns
+// the labeller's tally since $3, saving a round trip on every vote.
 const claimCheckSQL = `SELECT ` + itemColumns + `,
-	votes_needed, (SELECT count(*) FROM claims c WHERE c.item_id = items.id AND c.expires_at > now())
+	votes_needed, (SELECT count(*) FROM claims c WHERE c.item_id = items.id AND c.expires_at > now()),
+	(SELECT count(*) FROM votes v WHERE v.labeller_id = $2 AND v.created_at >= $3 AND v.project_id = items.project_id),
+	(SELECT coalesce(sum(seconds), 0) FROM votes v WHERE v.labeller_id = $2 AND v.created_at >= $3 AND v.project_id = items.project_id)
 	FROM items WHERE id = $1`
 
 // maxClaimRetries bounds the retries after losing a last slot to a race.
@@ -94,6 +100,22 @@ const maxClaimRetries = 8
 // nothing is left for them. Two labellers asking at once never share an
 // item's last needed slot.
 func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) {
+	var c Claim
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var err error
+		c, err = claimInTx(ctx, tx, req)
+		return err
+	})
+	if err != nil {
+		return Claim{}, fmt.Errorf("claim next item in project %d for labeller %d: %w", req.ProjectID, req.LabellerID, mapErr(err))
+	}
+	return c, nil
+}
+
+// claimInTx claims within tx, whose commit releases the item row lock. A
+// claim that lost the last slot to a race is taken back and the next item
+// tried.
+func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest) (Claim, error) {
 	exclude := slices.Clone(req.Exclude)
 	if exclude == nil {
 		exclude = []int64{}
@@ -102,43 +124,37 @@ func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) 
 	if secs <= 0 {
 		secs = 300
 	}
+	since := req.TallySince
+	if since.IsZero() {
+		since = time.Unix(0, 0)
+	}
 	for range maxClaimRetries {
 		var c Claim
-		lost := false
-		err := s.inTx(ctx, func(tx pgx.Tx) error {
-			var itemID int64
-			var how string
-			err := tx.QueryRow(ctx, claimSQL, req.ProjectID, req.LabellerID, exclude, req.Gold,
-				req.GoldSeed, secs).Scan(&itemID, &c.ExpiresAt, &how)
-			if err != nil {
-				return err
-			}
-			c.Resumed = how == "resume"
-			var needed, live int
-			it, err := scanItem(withExtra{tx.QueryRow(ctx, claimCheckSQL, itemID), []any{&needed, &live}})
-			if err != nil {
-				return err
-			}
-			c.Item = it
-			if how == "open" && live > needed {
-				lost = true
-				exclude = append(exclude, itemID)
-				return errLostSlot
-			}
-			return nil
-		})
-		if lost {
-			continue
-		}
+		var itemID int64
+		var how string
+		err := tx.QueryRow(ctx, claimSQL, req.ProjectID, req.LabellerID, exclude, req.Gold,
+			req.GoldSeed, secs).Scan(&itemID, &c.ExpiresAt, &how)
 		if err != nil {
-			return Claim{}, fmt.Errorf("claim next item in project %d for labeller %d: %w", req.ProjectID, req.LabellerID, mapErr(err))
+			return Claim{}, err
 		}
-		return c, nil
+		c.Resumed = how == "resume"
+		var needed, live int
+		it, err := scanItem(withExtra{tx.QueryRow(ctx, claimCheckSQL, itemID, req.LabellerID, since),
+			[]any{&needed, &live, &c.Tally.Votes, &c.Tally.Seconds}})
+		if err != nil {
+			return Claim{}, err
+		}
+		c.Item = it
+		if how != "open" || live <= needed {
+			return c, nil
+		}
+		if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, itemID, req.LabellerID); err != nil {
+			return Claim{}, err
+		}
+		exclude = append(exclude, itemID)
 	}
-	return Claim{}, fmt.Errorf("claim next item in project %d for labeller %d: %w", req.ProjectID, req.LabellerID, ErrNotFound)
+	return Claim{}, ErrNotFound
 }
-
-var errLostSlot = errors.New("lost the last slot to another labeller")
 
 // withExtra is a row whose trailing columns go to extra, so scanItem can
 // read an item followed by more columns.

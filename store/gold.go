@@ -57,16 +57,3 @@ func (s *Store) GoldLabels(ctx context.Context, projectID int64) (map[int64]int6
 	}
 	return out, rows.Err()
 }
-
-// LabelByKey returns one label of a project by its key.
-func (s *Store) LabelByKey(ctx context.Context, projectID int64, key string) (Label, error) {
-	var l Label
-	err := s.pool.QueryRow(ctx, `
-		SELECT id, project_id, parent_id, key, name, description, position, depth, is_leaf
-		FROM taxonomy_nodes WHERE project_id = $1 AND key = $2`, projectID, key).
-		Scan(&l.ID, &l.ProjectID, &l.ParentID, &l.Key, &l.Name, &l.Description, &l.Position, &l.Depth, &l.IsLeaf)
-	if err != nil {
-		return Label{}, fmt.Errorf("label %q of project %d: %w", key, projectID, mapErr(err))
-	}
-	return l, nil
-}

@@ -9,8 +9,12 @@ import (
 	"github.com/jackc/pgx/v5"
 )
 
-// ErrNoClaim means a vote came for an item the labeller does not hold.
+// ErrNoClaim means a vote came for an item the labeller does not hold, or
+// from a labeller whose membership is paused or blocked.
 var ErrNoClaim = &ConflictError{Constraint: "claim", Detail: "the item is not claimed by this labeller"}
+
+// ErrUnknownLabel means a vote named a label key the project does not have.
+var ErrUnknownLabel = errors.New("no label with this key in the project")
 
 // NewVote is a vote as the client sends it. ID is made by the client, so a
 // retry after a lost response is stored once.
@@ -19,8 +23,10 @@ type NewVote struct {
 	ProjectID  int64
 	ItemID     int64
 	LabellerID int64
-	LabelID    *int64 // nil: "can't tell"
-	Seconds    float64
+	// LabelID or LabelKey names the label; both nil means "can't tell".
+	LabelID  *int64
+	LabelKey *string
+	Seconds  float64
 }
 
 // VoteResult says what happened to a vote.
@@ -30,66 +36,130 @@ type VoteResult struct {
 	// GoldLabel is the item's known answer when it is a gold item; the
 	// caller shows it only if the project gives gold feedback.
 	GoldLabel *int64
+	// VotedLabel is the label the vote stored (nil: can't tell).
+	VotedLabel *int64
 }
 
 // RecordVote stores a vote, releases the labeller's claim, counts the vote
 // on the item and updates the item's consensus and status through decide,
 // all in one transaction. A vote id seen before returns Duplicate; a
-// different second vote by the labeller on the item is ErrConflict, and a
-// vote without a claim is ErrNoClaim.
+// different second vote by the labeller on the item is ErrConflict, a vote
+// without a claim (or by a paused member) ErrNoClaim, and a label key the
+// project lacks ErrUnknownLabel.
 func (s *Store) RecordVote(ctx context.Context, v NewVote, decide Decider) (VoteResult, error) {
+	res, _, err := s.RecordVoteAndClaim(ctx, v, decide, nil)
+	return res, err
+}
+
+// RecordVoteAndClaim is RecordVote followed, in the same transaction, by
+// ClaimNext(next) when next is not nil: one commit per vote. A repeated vote
+// id claims in a transaction of its own. The claim is nil when nothing is
+// left for the labeller.
+func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decider, next *ClaimRequest) (VoteResult, *Claim, error) {
 	var res VoteResult
+	var claim *Claim
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		var claimed, inserted bool
-		err := tx.QueryRow(ctx, `
-			WITH c AS (
-				DELETE FROM claims WHERE item_id = $3 AND labeller_id = $4 AND project_id = $2 RETURNING item_id
-			), ins AS (
-				INSERT INTO votes (id, project_id, item_id, labeller_id, label_id, seconds)
-				SELECT $1, $2, $3, $4, $5, $6 FROM c
-				ON CONFLICT (id) DO NOTHING
-				RETURNING label_id
-			), upd AS (
-				UPDATE items SET vote_count = vote_count + 1
-				WHERE id = $3 AND EXISTS (SELECT 1 FROM ins WHERE label_id IS NOT NULL)
-				RETURNING id
-			)
-			SELECT EXISTS (SELECT 1 FROM c), EXISTS (SELECT 1 FROM ins), (SELECT count(*) FROM upd)`,
-			v.ID, v.ProjectID, v.ItemID, v.LabellerID, v.LabelID, v.Seconds).Scan(&claimed, &inserted, new(int))
-		if err != nil {
+		var err error
+		if res, err = recordVoteTx(ctx, tx, v, decide); err != nil || next == nil {
 			return err
 		}
-		if !inserted {
-			return errNotInserted
-		}
-		if v.LabelID == nil {
-			// "Can't tell" changes no count and no consensus, but
-			// the gold answer still decides the feedback.
-			return tx.QueryRow(ctx, `SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).Scan(&res.GoldLabel)
-		}
-		return updateItem(ctx, tx, v.ProjectID, v.ItemID, decide, &res.GoldLabel)
+		return claimOrNone(ctx, tx, *next, &claim)
 	})
 	if errors.Is(err, errNotInserted) {
-		// Either the id was stored before (a retry) or there was no claim.
-		var labeller, item int64
-		err := s.pool.QueryRow(ctx, `SELECT labeller_id, item_id FROM votes WHERE id = $1`, v.ID).Scan(&labeller, &item)
-		switch {
-		case err == nil && labeller == v.LabellerID && item == v.ItemID:
-			res.Duplicate = true
-			s.pool.QueryRow(ctx, `SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).Scan(&res.GoldLabel)
-			return res, nil
-		case err == nil:
-			return VoteResult{}, fmt.Errorf("vote %s: id used by another vote: %w", v.ID, ErrConflict)
-		case errors.Is(err, pgx.ErrNoRows):
-			return VoteResult{}, fmt.Errorf("vote on item %d by labeller %d: %w", v.ItemID, v.LabellerID, ErrNoClaim)
-		default:
-			return VoteResult{}, fmt.Errorf("vote %s: %w", v.ID, err)
+		res, err = s.repeatedVote(ctx, v)
+		if err == nil && next != nil {
+			err = s.inTx(ctx, func(tx pgx.Tx) error { return claimOrNone(ctx, tx, *next, &claim) })
 		}
 	}
 	if err != nil {
-		return VoteResult{}, fmt.Errorf("vote on item %d by labeller %d: %w", v.ItemID, v.LabellerID, mapErr(err))
+		if errors.Is(err, ErrUnknownLabel) || errors.Is(err, ErrNoClaim) {
+			return VoteResult{}, nil, fmt.Errorf("vote on item %d by labeller %d: %w", v.ItemID, v.LabellerID, err)
+		}
+		return VoteResult{}, nil, fmt.Errorf("vote on item %d by labeller %d: %w", v.ItemID, v.LabellerID, mapErr(err))
 	}
-	return res, nil
+	return res, claim, nil
+}
+
+func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, out **Claim) error {
+	c, err := claimInTx(ctx, tx, req)
+	if errors.Is(err, ErrNotFound) || errors.Is(err, pgx.ErrNoRows) {
+		return nil
+	}
+	if err != nil {
+		return err
+	}
+	*out = &c
+	return nil
+}
+
+// voteSQL deletes the claim, inserts the vote and counts it in one
+// statement. A paused or blocked member's claim does not match, so their
+// vote is refused like one without a claim.
+const voteSQL = `
+WITH lbl AS (
+	SELECT id FROM taxonomy_nodes WHERE project_id = $2 AND key = $7
+), c AS (
+	DELETE FROM claims WHERE item_id = $3 AND labeller_id = $4 AND project_id = $2
+		AND ($7::text IS NULL OR EXISTS (SELECT 1 FROM lbl))
+		AND NOT EXISTS (SELECT 1 FROM project_members m
+			WHERE m.project_id = $2 AND m.user_id = $4 AND m.status <> 'active')
+	RETURNING item_id
+), ins AS (
+	INSERT INTO votes (id, project_id, item_id, labeller_id, label_id, seconds)
+	SELECT $1, $2, $3, $4, coalesce($5, (SELECT id FROM lbl)), $6 FROM c
+	ON CONFLICT (id) DO NOTHING
+	RETURNING label_id
+), upd AS (
+	UPDATE items SET vote_count = vote_count + 1
+	WHERE id = $3 AND EXISTS (SELECT 1 FROM ins WHERE label_id IS NOT NULL)
+	RETURNING id
+)
+SELECT EXISTS (SELECT 1 FROM ins), (SELECT label_id FROM ins),
+	$7::text IS NULL OR EXISTS (SELECT 1 FROM lbl), (SELECT count(*) FROM upd)`
+
+func recordVoteTx(ctx context.Context, tx pgx.Tx, v NewVote, decide Decider) (VoteResult, error) {
+	var res VoteResult
+	var inserted, labelKnown bool
+	var label *int64
+	err := tx.QueryRow(ctx, voteSQL, v.ID, v.ProjectID, v.ItemID, v.LabellerID, v.LabelID, v.Seconds, v.LabelKey).
+		Scan(&inserted, &label, &labelKnown, new(int))
+	if err != nil {
+		return res, err
+	}
+	if !labelKnown {
+		return res, ErrUnknownLabel
+	}
+	if !inserted {
+		return res, errNotInserted
+	}
+	res.VotedLabel = label
+	if label == nil {
+		// "Can't tell" changes no count and no consensus, but the gold
+		// answer still decides the feedback.
+		err := tx.QueryRow(ctx, `SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).Scan(&res.GoldLabel)
+		return res, err
+	}
+	return res, updateItem(ctx, tx, v.ProjectID, v.ItemID, decide, &res.GoldLabel)
+}
+
+// repeatedVote answers a vote that was not inserted: a retry of a stored
+// vote succeeds again, anything else is refused.
+func (s *Store) repeatedVote(ctx context.Context, v NewVote) (VoteResult, error) {
+	var labeller, item int64
+	var label *int64
+	err := s.pool.QueryRow(ctx, `SELECT labeller_id, item_id, label_id FROM votes WHERE id = $1`, v.ID).Scan(&labeller, &item, &label)
+	switch {
+	case err == nil && labeller == v.LabellerID && item == v.ItemID:
+		res := VoteResult{Duplicate: true, VotedLabel: label}
+		err := s.pool.QueryRow(ctx, `SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).Scan(&res.GoldLabel)
+		return res, err
+	case err == nil:
+		return VoteResult{}, fmt.Errorf("vote %s: id used by another vote: %w", v.ID, ErrConflict)
+	case errors.Is(err, pgx.ErrNoRows):
+		return VoteResult{}, ErrNoClaim
+	default:
+		return VoteResult{}, err
+	}
 }
 
 var errNotInserted = errors.New("vote not inserted")

@@ -73,13 +73,23 @@ func (s *Server) checkCanLabel(r *http.Request, p *store.Project) error {
 	}
 }
 
-// claimFor claims the next item, drawing against the gold rate first.
-func (s *Server) claimFor(r *http.Request, p *store.Project, exclude []int64) (*itemJSON, error) {
-	u := userFrom(r.Context())
-	req := store.ClaimRequest{ProjectID: p.ID, LabellerID: u.ID, Exclude: exclude,
+// claimRequest asks for the labeller's next item, drawing against the
+// gold rate first.
+func (s *Server) claimRequest(r *http.Request, p *store.Project, exclude []int64) store.ClaimRequest {
+	return store.ClaimRequest{ProjectID: p.ID, LabellerID: userFrom(r.Context()).ID, Exclude: exclude,
 		Gold: rand.Float64() < p.Policy.GoldRate, GoldSeed: rand.Int64(),
-		Lifetime: time.Duration(p.Policy.ClaimSeconds) * time.Second}
-	c, err := s.store.ClaimNext(r.Context(), req)
+		Lifetime: time.Duration(p.Policy.ClaimSeconds) * time.Second, TallySince: s.today()}
+}
+
+func (s *Server) today() time.Time {
+	now := s.now()
+	y, m, d := now.Date()
+	return time.Date(y, m, d, 0, 0, 0, 0, now.Location())
+}
+
+// claimFor claims the next item.
+func (s *Server) claimFor(r *http.Request, p *store.Project, exclude []int64) (*itemJSON, error) {
+	c, err := s.store.ClaimNext(r.Context(), s.claimRequest(r, p, exclude))
 	if errors.Is(err, store.ErrNotFound) {
 		return nil, nil
 	}
@@ -90,9 +100,7 @@ func (s *Server) claimFor(r *http.Request, p *store.Project, exclude []int64) (*
 }
 
 func (s *Server) tally(r *http.Request, p *store.Project) (*store.Tally, error) {
-	now := s.now()
-	y, m, d := now.Date()
-	t, err := s.store.VoteTally(r.Context(), p.ID, userFrom(r.Context()).ID, time.Date(y, m, d, 0, 0, 0, 0, now.Location()))
+	t, err := s.store.VoteTally(r.Context(), p.ID, userFrom(r.Context()).ID, s.today())
 	return &t, err
 }
 
@@ -170,39 +178,33 @@ func (s *Server) createVote(w http.ResponseWriter, r *http.Request) error {
 	if err := checkHeld(req.Exclude); err != nil {
 		return err
 	}
-	if err := s.checkCanLabel(r, p); err != nil {
-		return err
-	}
-	vote := store.NewVote{ID: req.ID, ProjectID: p.ID, ItemID: req.Item, LabellerID: u.ID, Seconds: req.Seconds}
-	if req.Label != nil {
-		l, err := s.store.LabelByKey(ctx, p.ID, *req.Label)
-		if errors.Is(err, store.ErrNotFound) {
-			return badRequest("label: no label with this key in the project")
-		} else if err != nil {
+	// Membership is checked inside the vote's SQL (a paused member's claim
+	// does not count), so the common case costs no extra query.
+	vote := store.NewVote{ID: req.ID, ProjectID: p.ID, ItemID: req.Item, LabellerID: u.ID, LabelKey: req.Label, Seconds: req.Seconds}
+	next := s.claimRequest(r, p, append(req.Exclude, req.Item))
+	res, claim, err := s.store.RecordVoteAndClaim(ctx, vote, s.decider(p), &next)
+	switch {
+	case errors.Is(err, store.ErrUnknownLabel):
+		return badRequest("label: no label with this key in the project")
+	case errors.Is(err, store.ErrNoClaim):
+		if err := s.checkCanLabel(r, p); err != nil {
 			return err
 		}
-		vote.LabelID = &l.ID
-	}
-	res, err := s.store.RecordVote(ctx, vote, s.decider(p))
-	if errors.Is(err, store.ErrNoClaim) {
 		return &userError{http.StatusConflict, "This item is no longer yours to vote on; it may have expired or been voted on already."}
-	}
-	if errors.Is(err, store.ErrConflict) {
+	case errors.Is(err, store.ErrConflict):
 		return &userError{http.StatusConflict, "You have voted on this item already."}
-	}
-	if err != nil {
+	case err != nil:
 		return err
 	}
 	out := labelResponse{Repeat: res.Duplicate}
 	if p.Policy.GoldFeedback && res.GoldLabel != nil {
-		if out.Feedback, err = s.feedback(r, p, *res.GoldLabel, vote.LabelID); err != nil {
+		if out.Feedback, err = s.feedback(r, p, *res.GoldLabel, res.VotedLabel); err != nil {
 			return err
 		}
 	}
-	if out.Next, err = s.claimFor(r, p, append(req.Exclude, req.Item)); err != nil {
-		return err
-	}
-	if out.Tally, err = s.tally(r, p); err != nil {
+	if claim != nil {
+		out.Next, out.Tally = itemView(p, claim.Item), &claim.Tally
+	} else if out.Tally, err = s.tally(r, p); err != nil {
 		return err
 	}
 	return writeJSON(w, http.StatusOK, out)

@@ -107,7 +107,9 @@
   }
 
   // ---- items: a queue of claimed items, the first one on screen ----
-  var queue = [], shownAt = 0, skipped = [], busy = false, undone = null;
+  // seen holds items voted on or skipped here: an answer to a request sent
+  // before that happened may still offer them, and they must not return.
+  var queue = [], shownAt = 0, skipped = [], busy = false, seen = {};
   function held() {
     return queue.map(function (it) { return it.id; }).concat(skipped).slice(-50);
   }
@@ -128,7 +130,7 @@
     reset();
   }
   function add(it) {
-    if (!it || queue.some(function (q) { return q.id === it.id; })) return;
+    if (!it || seen[it.id] || queue.some(function (q) { return q.id === it.id; })) return;
     preload(it);
     queue.push(it);
     if (queue.length === 1) show();
@@ -164,13 +166,18 @@
   }
   function fail(e) { say(e.msg || String(e)); }
 
+  // fill keeps two items claimed, one request at a time.
   function fill() {
     if (queue.length >= 2 || busy) return Promise.resolve();
+    busy = true;
     return post("/next", { exclude: held() }).then(function (j) {
+      busy = false;
       tally(j.tally);
-      if (j.next) { add(j.next); return fill(); }
+      var before = queue.length;
+      add(j.next);
+      if (queue.length > before) return fill();
       if (!queue.length) show();
-    }, fail);
+    }, function (e) { busy = false; fail(e); });
   }
 
   function uuid() {
@@ -188,7 +195,8 @@
     if (!it) return;
     var secs = Math.min((performance.now() - shownAt) / 1000, 86400);
     queue.shift();
-    var body = { id: uuid(), item: it.id, label: key, seconds: Math.round(secs * 10) / 10, exclude: held() };
+    seen[it.id] = true;
+    var body = { id: uuid(), item: it.id, label: key, seconds: Math.round(secs * 100) / 100, exclude: held() };
     show();
     say(key == null ? "Saved: can't tell." : "Saved: " + byKey(key) + ".");
     post("/votes", body).then(function (j) {
@@ -210,6 +218,7 @@
     var it = queue.shift();
     if (!it) return;
     skipped.push(it.id);
+    seen[it.id] = true;
     show();
     say("Skipped.");
     post("/skip", { item: it.id, exclude: held() }).then(function (j) { add(j.next); return fill(); }, fail);
@@ -219,6 +228,7 @@
     post("/undo", {}).then(function (j) {
       tally(j.tally);
       if (!j.item) return;
+      delete seen[j.item.id];
       queue = queue.filter(function (q) { return q.id !== j.item.id; });
       preload(j.item);
       queue.unshift(j.item);

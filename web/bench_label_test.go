@@ -1,0 +1,183 @@
+package web
+
+import (
+	"context"
+	"crypto/sha256"
+	"encoding/hex"
+	"encoding/json"
+	"fmt"
+	"net/http"
+	"net/http/httptest"
+	"slices"
+	"strings"
+	"sync"
+	"sync/atomic"
+	"testing"
+	"time"
+
+	"github.com/concord-labs/concord/store"
+)
+
+// benchLabellers is the number of labellers voting at once.
+const benchLabellers = 100
+
+// benchItems is the size of the benchmark project.
+const benchItems = 20000
+
+// BenchmarkVoteAndClaim measures the server time of "record a vote and
+// claim the next item" (POST /api/p/{project}/votes) with 100 labellers
+// voting at once on a 20,000-item project, after a Dawid-Skene refit so the
+// vote path updates consensus from fitted matrices. Requests go straight to
+// the handler (routing, session, cross-origin check, SQL), without a
+// network in between. It reports the median and 99th percentile latency and
+// the votes stored per second. Run it with a fixed count, for example
+//
+//	go test ./web -run '^$' -bench VoteAndClaim -benchtime 20000x
+func BenchmarkVoteAndClaim(b *testing.B) {
+	ctx := context.Background()
+	sep := "?"
+	if strings.Contains(testDB.URL, "?") {
+		sep = "&"
+	}
+	s, err := store.Open(ctx, testDB.URL+sep+"pool_max_conns=40")
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer s.Close()
+	srv := New(s, nil, Config{DataDir: b.TempDir()})
+	h := srv.Handler()
+	p, err := s.CreateProjectWithTaxonomy(ctx, store.Project{Slug: uniq("bench"), Name: "Bench line"}, []store.LabelInput{
+		{Key: "plastic", Parent: -1},
+		{Key: "pet-bottle", Name: "PET bottle", Parent: 0},
+		{Key: "plastic-film", Name: "Plastic film", Parent: 0},
+		{Key: "metal", Parent: -1},
+		{Key: "aluminium-can", Name: "Aluminium can", Parent: 3},
+		{Key: "glass", Parent: -1},
+		{Key: "cardboard", Parent: -1},
+		{Key: "residual", Name: "Residual waste", Parent: -1},
+	})
+	if err != nil {
+		b.Fatal(err)
+	}
+	items := make([]store.NewItem, benchItems)
+	for i := range items {
+		sum := sha256.Sum256(fmt.Appendf(nil, "bench %s %d", p.Slug, i))
+		items[i] = store.NewItem{SHA256: sum, FileKey: hex.EncodeToString(sum[:]), MediaType: "image/png", Bytes: 1000, Width: 640, Height: 480}
+	}
+	if _, err := s.InsertItems(ctx, p.ID, items); err != nil {
+		b.Fatal(err)
+	}
+	if _, err := s.Pool().Exec(ctx, `UPDATE items SET votes_needed = 3 WHERE project_id = $1`, p.ID); err != nil {
+		b.Fatal(err)
+	}
+	leaves := []string{"pet-bottle", "plastic-film", "aluminium-can", "glass", "cardboard", "residual"}
+	cookies := make([]string, benchLabellers)
+	for i := range cookies {
+		u, err := s.CreateUser(ctx, store.User{Login: uniq("bench-labeller"), DisplayName: "b", Role: store.RoleLabeller})
+		if err != nil {
+			b.Fatal(err)
+		}
+		if err := s.AddMember(ctx, p.ID, u.ID); err != nil {
+			b.Fatal(err)
+		}
+		token, hash := newToken()
+		if err := s.CreateSession(ctx, hash, u.ID, time.Now().Add(time.Hour)); err != nil {
+			b.Fatal(err)
+		}
+		cookies[i] = sessionCookie + "=" + token
+	}
+	call := func(cookie, path, body string) (labelResponseJSON, int) {
+		req := httptest.NewRequest("POST", "http://concord.test"+path, strings.NewReader(body))
+		req.Header.Set("Content-Type", "application/json")
+		req.Header.Set("Accept", "application/json")
+		req.Header.Set("Sec-Fetch-Site", "same-origin")
+		req.Header.Set("Cookie", cookie)
+		w := httptest.NewRecorder()
+		h.ServeHTTP(w, req)
+		var out labelResponseJSON
+		json.Unmarshal(w.Body.Bytes(), &out)
+		return out, w.Code
+	}
+	var seq atomic.Int64
+	// vote has labeller i vote on item and returns the next item.
+	vote := func(i int, item int64) (*itemJSON, time.Duration, error) {
+		n := seq.Add(1)
+		body := fmt.Sprintf(`{"id":"%08x-0000-4000-8000-%012x","item":%d,"label":"%s","seconds":3.2,"exclude":[]}`,
+			p.ID, n, item, leaves[(int(item)*7+i)%len(leaves)])
+		start := time.Now()
+		out, code := call(cookies[i], "/api/p/"+p.Slug+"/votes", body)
+		d := time.Since(start)
+		if code != http.StatusOK {
+			return nil, d, fmt.Errorf("vote: %d %s", code, out.Error)
+		}
+		return out.Next, d, nil
+	}
+	current := make([]*itemJSON, benchLabellers)
+	for i := range current {
+		out, code := call(cookies[i], "/api/p/"+p.Slug+"/next", `{}`)
+		if code != http.StatusOK || out.Next == nil {
+			b.Fatalf("first claim: %d %s", code, out.Error)
+		}
+		current[i] = out.Next
+	}
+	// Warm up with a few votes each, then fit, so the timed votes use the
+	// Dawid-Skene path.
+	for i := range current {
+		for range 5 {
+			next, _, err := vote(i, current[i].ID)
+			if err != nil {
+				b.Fatal(err)
+			}
+			current[i] = next
+		}
+	}
+	if err := srv.RefitProject(ctx, p.ID); err != nil {
+		b.Fatal(err)
+	}
+
+	lat := make([][]time.Duration, benchLabellers)
+	var wg sync.WaitGroup
+	var failed atomic.Value
+	b.ResetTimer()
+	start := time.Now()
+	for i := range benchLabellers {
+		share := b.N / benchLabellers
+		if i < b.N%benchLabellers {
+			share++
+		}
+		wg.Go(func() {
+			for range share {
+				if current[i] == nil {
+					return
+				}
+				next, d, err := vote(i, current[i].ID)
+				if err != nil {
+					failed.Store(err)
+					return
+				}
+				lat[i] = append(lat[i], d)
+				current[i] = next
+			}
+		})
+	}
+	wg.Wait()
+	elapsed := time.Since(start)
+	b.StopTimer()
+	if err, _ := failed.Load().(error); err != nil {
+		b.Fatal(err)
+	}
+	var all []time.Duration
+	for _, l := range lat {
+		all = append(all, l...)
+	}
+	if len(all) == 0 {
+		b.Fatal("no votes timed")
+	}
+	slices.Sort(all)
+	pct := func(q float64) float64 {
+		return float64(all[min(int(q*float64(len(all))), len(all)-1)].Microseconds()) / 1000
+	}
+	b.ReportMetric(pct(0.50), "p50-ms")
+	b.ReportMetric(pct(0.99), "p99-ms")
+	b.ReportMetric(float64(len(all))/elapsed.Seconds(), "votes/s")
+}
