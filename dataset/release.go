@@ -159,7 +159,7 @@ func BuildRelease(in ReleaseInput) (*Release, error) {
 	// Groups span every item, released or not, so that a group's key does
 	// not depend on which of its items are sure enough today.
 	splits, groups := AssignSplits(gi, p.Seed, p.Split, in.Pins)
-	rel := &Release{Params: p, Counts: Counts{}, Files: map[string][]byte{}}
+	rel := &Release{Params: p, Rows: make([]Row, 0, len(items)), Counts: Counts{}, Files: map[string][]byte{}}
 	for i, it := range items {
 		node, conf, ok := lab.choose(it.Vote)
 		if !ok {

@@ -3,6 +3,7 @@ package dataset
 import (
 	"context"
 	"fmt"
+	"strconv"
 	"strings"
 
 	"github.com/concord-labs/concord/store"
@@ -102,21 +103,27 @@ func (r *Releaser) Create(ctx context.Context, projectID int64, p ReleaseParams,
 	if err != nil {
 		return nil, store.Release{}, err
 	}
+	rec, err := r.Record(ctx, projectID, p, rel, createdBy)
+	if err != nil {
+		return nil, store.Release{}, err
+	}
+	return rel, rec, nil
+}
+
+// Record writes a computed release and its items to the database in one
+// transaction. The name must be new for the project.
+func (r *Releaser) Record(ctx context.Context, projectID int64, p ReleaseParams, rel *Release, createdBy *int64) (store.Release, error) {
 	items := make([]store.ReleaseItem, len(rel.Rows))
 	for i, row := range rel.Rows {
 		items[i] = store.ReleaseItem{ItemID: row.Item, Split: row.Split.String(), LabelKey: row.Label,
-			Confidence: row.Confidence, Votes: row.Votes, GroupKey: fmt.Sprint(row.Group)}
+			Confidence: row.Confidence, Votes: row.Votes, GroupKey: strconv.FormatInt(row.Group, 10)}
 	}
 	var level *int
 	if p.Level != LevelLeaf {
 		level = &p.Level
 	}
-	rec, err := r.Store.CreateRelease(ctx, store.Release{ProjectID: projectID, Name: p.Name, Seed: p.Seed,
+	return r.Store.CreateRelease(ctx, store.Release{ProjectID: projectID, Name: p.Name, Seed: p.Seed,
 		SplitTrain: p.Split[0], SplitVal: p.Split[1], SplitTest: p.Split[2], MinConfidence: p.MinConfidence,
 		Level: level, Formats: strings.Join(p.Formats, ","), ManifestSHA256: rel.ManifestSHA256,
 		Card: string(rel.Files[CardFile]), CreatedBy: createdBy}, items)
-	if err != nil {
-		return nil, store.Release{}, err
-	}
-	return rel, rec, nil
 }

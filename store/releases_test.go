@@ -3,6 +3,7 @@ package store_test
 import (
 	"context"
 	"errors"
+	"strings"
 	"testing"
 
 	"github.com/concord-labs/concord/store"
@@ -68,5 +69,58 @@ func TestReleasesRecordedOnceAndPinSplits(t *testing.T) {
 	}
 	if sum, err := f.s.AgreementSummary(ctx, f.project.ID); err != nil || sum != nil {
 		t.Errorf("AgreementSummary before any fit = %s, %v", sum, err)
+	}
+}
+
+// release_items has no foreign key to items (migration 0003); these are
+// the guarantees that stand in for it.
+func TestReleaseItemsBelongToTheProject(t *testing.T) {
+	ctx := context.Background()
+	f, g := newFixture(t), newFixture(t)
+	mine, err := f.s.InsertItems(ctx, f.project.ID, []store.NewItem{newItem("own.png", 1)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	theirs, err := g.s.InsertItems(ctx, g.project.ID, []store.NewItem{newItem("other.png", 2)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	own, other := mine[newItem("own.png", 0).SHA256], theirs[newItem("other.png", 0).SHA256]
+	rel := store.Release{ProjectID: f.project.ID, Name: "v1", Seed: 1, SplitTrain: 80, SplitVal: 10, SplitTest: 10,
+		Formats: "jsonl", ManifestSHA256: [32]byte{2}}
+	item := func(id int64) store.ReleaseItem {
+		return store.ReleaseItem{ItemID: id, Split: "train", LabelKey: "glass", Confidence: 1, GroupKey: "1"}
+	}
+	for name, items := range map[string][]store.ReleaseItem{
+		"another project's item": {item(own), item(other)},
+		"a missing item":         {item(own), item(other + 1_000_000)},
+	} {
+		if _, err := f.s.CreateRelease(ctx, rel, items); !errors.Is(err, store.ErrConflict) {
+			t.Errorf("release naming %s: %v, want ErrConflict", name, err)
+		}
+	}
+	if list, _ := f.s.Releases(ctx, f.project.ID); len(list) != 0 {
+		t.Fatalf("a refused release was recorded: %+v", list)
+	}
+	got, err := f.s.CreateRelease(ctx, rel, []store.ReleaseItem{item(own)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if items, err := f.s.ReleaseItems(ctx, got.ID); err != nil || len(items) != 1 || items[0].ItemID != own {
+		t.Errorf("ReleaseItems = %+v, %v", items, err)
+	}
+	if _, err := f.s.Pool().Exec(ctx, `DELETE FROM items WHERE id = $1`, own); err == nil || !strings.Contains(err.Error(), "named by a release") {
+		t.Errorf("deleting an item a release names: %v, want the trigger's refusal", err)
+	}
+	if _, err := f.s.Pool().Exec(ctx, `DELETE FROM items WHERE id = $1`, other); err != nil {
+		t.Errorf("deleting an item no release names: %v", err)
+	}
+	// Deleting the project cascades to its releases before the items' check runs.
+	if _, err := f.s.Pool().Exec(ctx, `DELETE FROM projects WHERE id = $1`, f.project.ID); err != nil {
+		t.Fatalf("deleting a project with a release: %v", err)
+	}
+	var left int
+	if err := f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM release_items WHERE release_id = $1`, got.ID).Scan(&left); err != nil || left != 0 {
+		t.Errorf("%d release items left after the project was deleted (%v)", left, err)
 	}
 }
