@@ -41,8 +41,9 @@ type engine struct {
 	Interval time.Duration
 	MinVotes int64
 
-	mu     sync.Mutex
-	models map[int64]*fitModel
+	mu      sync.Mutex
+	models  map[int64]*fitModel
+	loading map[int64]bool
 }
 
 // engines maps a Server to its engine. Server's struct lives in server.go,
@@ -80,24 +81,51 @@ type fitModel struct {
 	matrix   map[int64][]float64 // labeller -> K x K, full or one-coin
 }
 
-// model returns the project's fit as of fittedAt, loading it when the
-// cache is older; nil when the fit has no usable matrices.
-func (e *engine) model(ctx context.Context, st *store.Store, projectID int64, fittedAt time.Time) (*fitModel, error) {
+// model returns the cached fit of a project, or nil before it is loaded.
+// It never waits for the database: it runs inside the vote transaction,
+// which already holds a pool connection, and loading the model there would
+// need a second one — with every connection held by a vote waiting for
+// another, the pool starves. When the cache is older than fittedAt it
+// starts one background reload and answers with what it has (an older fit,
+// or nil and majority vote); the next refit corrects any item decided so.
+func (e *engine) model(st *store.Store, projectID int64, fittedAt time.Time) *fitModel {
 	e.mu.Lock()
+	defer e.mu.Unlock()
 	m := e.models[projectID]
-	e.mu.Unlock()
-	if m != nil && m.fittedAt.Equal(fittedAt) {
-		return m, nil
+	if (m == nil || !m.fittedAt.Equal(fittedAt)) && !e.loading[projectID] {
+		if e.loading == nil {
+			e.loading = map[int64]bool{}
+		}
+		e.loading[projectID] = true
+		go e.reload(st, projectID)
 	}
+	return m
+}
+
+// reload loads a project's fit into the cache on a connection of its own.
+func (e *engine) reload(st *store.Store, projectID int64) {
+	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
+	defer cancel()
+	pm, err := st.ProjectModel(ctx, projectID)
+	e.mu.Lock()
+	defer e.mu.Unlock()
+	delete(e.loading, projectID)
+	if err == nil {
+		e.models[projectID] = buildFitModel(pm)
+	}
+}
+
+// loadModel loads a project's fit into the cache and waits for it (for
+// refits and tests, never inside a transaction).
+func (e *engine) loadModel(ctx context.Context, st *store.Store, projectID int64) error {
 	pm, err := st.ProjectModel(ctx, projectID)
 	if err != nil {
-		return nil, err
+		return err
 	}
-	m = buildFitModel(pm)
 	e.mu.Lock()
-	e.models[projectID] = m
+	e.models[projectID] = buildFitModel(pm)
 	e.mu.Unlock()
-	return m, nil
+	return nil
 }
 
 func buildFitModel(pm store.ProjectModel) *fitModel {
@@ -165,11 +193,7 @@ func (s *Server) decider(p *store.Project) store.Decider {
 			return store.ItemUpdate{Status: "unstarted", VotesNeeded: max(p.Policy.MinVotes, 1)}, nil
 		}
 		if !iv.FittedAt.IsZero() {
-			m, err := s.engine().model(ctx, s.store, p.ID, iv.FittedAt)
-			if err != nil && !errors.Is(err, store.ErrNotFound) {
-				return store.ItemUpdate{}, err
-			}
-			if m != nil && m.k > 0 {
+			if m := s.engine().model(s.store, p.ID, iv.FittedAt); m != nil && m.k > 0 {
 				if u, ok := m.decide(iv, pol); ok {
 					return u, nil
 				}
@@ -380,6 +404,10 @@ func (s *Server) RefitProject(ctx context.Context, projectID int64) error {
 	}
 	if !ran {
 		return ErrRefitBusy
+	}
+	// Warm the vote path's cache now, so the next votes use this fit.
+	if err := s.engine().loadModel(ctx, s.store, projectID); err != nil && !errors.Is(err, store.ErrNotFound) {
+		return fmt.Errorf("refit project %d: load the new fit: %w", projectID, err)
 	}
 	return nil
 }
