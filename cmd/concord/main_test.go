@@ -4,6 +4,7 @@ import (
 	"bytes"
 	"context"
 	"errors"
+	"flag"
 	"os"
 	"strings"
 	"testing"
@@ -56,6 +57,16 @@ func TestHelpAndVersion(t *testing.T) {
 	var ue usageError
 	if !errors.As(r.err, &ue) || !strings.Contains(r.err.Error(), `unknown command "frobnicate"`) {
 		t.Errorf("unknown command: %v", r.err)
+	}
+	// Each command answers --help with its own usage and no error beyond flag.ErrHelp.
+	for _, c := range commands() {
+		r := runConcord(t, "", []string{c.name, "--help"})
+		if r.err != nil && !errors.Is(r.err, flag.ErrHelp) {
+			t.Errorf("%s --help: %v", c.name, r.err)
+		}
+		if !strings.Contains(r.stdout+r.stderr, "Usage: concord "+c.name) {
+			t.Errorf("%s --help printed no usage line:\n%s%s", c.name, r.stdout, r.stderr)
+		}
 	}
 }
 
