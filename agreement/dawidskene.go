@@ -10,10 +10,15 @@ import (
 // DefaultSmoothing is the pseudo-count added to every confusion-matrix cell
 // and every class prior when DawidSkeneOptions.Smoothing is zero. It is a
 // symmetric Dirichlet(1+a) prior, so EM finds the posterior mode rather than
-// the maximum-likelihood point. 0.01 keeps every log finite (a labeller who
-// never used a label is not declared incapable of it) while barely moving
-// labellers with many votes; it is common practice, not a published value.
-const DefaultSmoothing = 0.01
+// the maximum-likelihood point. It keeps every log finite (a labeller who
+// never used a label is not declared incapable of it). The value 0.1 is our
+// choice, not a published one: on `concord simulate`'s crowd at three votes
+// per item, 0.01 claimed a mean confidence of 98.3% for 92.0% accuracy
+// while 0.1 claimed 97.4% for 92.1%, and on the rte crowd set accuracy rose
+// from 0.9275 to 0.9287. Less overconfidence matters because an item is
+// done once its confidence reaches the lead's target. Labellers with
+// hundreds of votes barely move either way.
+const DefaultSmoothing = 0.1
 
 // DawidSkeneOptions tunes DawidSkene. The zero value gives the defaults.
 type DawidSkeneOptions struct {

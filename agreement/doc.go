@@ -18,7 +18,7 @@
 //   - EM starts from each item's vote shares (the paper's eq. 3.1), so a run
 //     is deterministic; like any EM it reaches a local optimum, not
 //     necessarily the global one.
-//   - Additive (symmetric Dirichlet) smoothing, DefaultSmoothing = 0.01 per
+//   - Additive (symmetric Dirichlet) smoothing, DefaultSmoothing = 0.1 per
 //     cell and per prior, keeps a labeller with few votes from getting zero
 //     cells that would veto a class outright; NoSmoothing gives the
 //     paper's plain maximum likelihood.

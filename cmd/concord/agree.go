@@ -52,6 +52,7 @@ type agreeOptions struct {
 	seed        uint64
 	minShared   int
 	fastSeconds float64
+	smoothing   float64
 	top         int
 }
 
@@ -71,6 +72,7 @@ func runAgree(ctx context.Context, e *env, args []string) error {
 	fs.IntVar(&o.minShared, "min-shared", agreement.DefaultMinShared, "shared items a pair of labellers needs for Cohen's kappa")
 	fs.Float64Var(&o.fastSeconds, "fast-seconds", 1, "median seconds per vote below which a labeller is flagged too fast")
 	fs.StringVar(&columns, "columns", "", "votes column names, e.g. item=subject,labeller=rater,label=category")
+	fs.Float64Var(&o.smoothing, "smoothing", agreement.DefaultSmoothing, "Dawid-Skene pseudo-count per confusion cell and prior")
 	fs.IntVar(&o.top, "top", 20, "rows per table in the text report (0: all)")
 	if err := parseFlags(e, fs, args); err != nil {
 		return err
@@ -84,6 +86,8 @@ func runAgree(ctx context.Context, e *env, args []string) error {
 		return usagef("agree: --method %q: want ds or mv", o.method)
 	case o.bootstrap < 0:
 		return usagef("agree: --bootstrap %d is negative", o.bootstrap)
+	case !(o.smoothing > 0):
+		return usagef("agree: --smoothing %g: want a number above 0", o.smoothing)
 	case o.minShared < 1:
 		return usagef("agree: --min-shared %d: want at least 1", o.minShared)
 	}
@@ -323,7 +327,7 @@ func analyseVotes(vt *voteTable, gold *goldSet, o agreeOptions) (*agreeReport, e
 		return nil, err
 	}
 
-	ds, err := agreement.DawidSkene(v, agreement.DawidSkeneOptions{Fixed: fixed})
+	ds, err := agreement.DawidSkene(v, agreement.DawidSkeneOptions{Fixed: fixed, Smoothing: o.smoothing})
 	if err != nil {
 		return nil, fmt.Errorf("agree: Dawid-Skene: %w", err)
 	}
@@ -402,7 +406,7 @@ func analyseVotes(vt *voteTable, gold *goldSet, o agreeOptions) (*agreeReport, e
 	}
 
 	if gold != nil {
-		if rep.Gold, err = goldAccuracy(v, gold, ds, mv); err != nil {
+		if rep.Gold, err = goldAccuracy(v, gold, ds, mv, o.smoothing); err != nil {
 			return nil, err
 		}
 	}
@@ -463,7 +467,7 @@ func newIntervalJSON(iv agreement.BootstrapInterval, seed uint64) *intervalJSON 
 // goldAccuracy scores the consensus against gold without letting gold
 // decide it: for Dawid-Skene a second fit with nothing held fixed, for
 // majority vote the votes alone.
-func goldAccuracy(v *agreement.Votes, gold *goldSet, fixedFit *agreement.DawidSkeneResult, mv *agreement.Majority) (*goldJSON, error) {
+func goldAccuracy(v *agreement.Votes, gold *goldSet, fixedFit *agreement.DawidSkeneResult, mv *agreement.Majority, smoothing float64) (*goldJSON, error) {
 	g := &goldJSON{Items: len(gold.class), Unvoted: gold.unvoted, AddedLabels: gold.addedClasses}
 	if g.AddedLabels == nil {
 		g.AddedLabels = []string{}
@@ -489,7 +493,7 @@ func goldAccuracy(v *agreement.Votes, gold *goldSet, fixedFit *agreement.DawidSk
 		free := fixedFit
 		if len(gold.class) > 0 {
 			var err error
-			if free, err = agreement.DawidSkene(v, agreement.DawidSkeneOptions{}); err != nil {
+			if free, err = agreement.DawidSkene(v, agreement.DawidSkeneOptions{Smoothing: smoothing}); err != nil {
 				return nil, fmt.Errorf("agree: Dawid-Skene without gold: %w", err)
 			}
 		}

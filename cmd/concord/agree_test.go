@@ -150,7 +150,8 @@ func TestAgreeCrowdSets(t *testing.T) {
 		t.Run(tc.name, func(t *testing.T) {
 			dir := crowdData + tc.name
 			v, gold, b := loadCrowd(t, dir)
-			out, _ := agreeJSON(t, "--votes", dir+"/votes.csv", "--gold", dir+"/gold.csv", "--bootstrap", "50")
+			// --smoothing 0.01: the settings SOURCE.md's computation used.
+			out, _ := agreeJSON(t, "--votes", dir+"/votes.csv", "--gold", dir+"/gold.csv", "--bootstrap", "50", "--smoothing", "0.01")
 			if out.Items != v.NumItems || out.Labellers != v.NumLabellers || out.Votes != v.Len() || !slices.Equal(out.Classes, b.ClassNames()) {
 				t.Errorf("counts %d/%d/%d %v, want %d/%d/%d %v", out.Items, out.Labellers, out.Votes, out.Classes, v.NumItems, v.NumLabellers, v.Len(), b.ClassNames())
 			}
@@ -174,7 +175,7 @@ func TestAgreeCrowdSets(t *testing.T) {
 				t.Errorf("krippendorff_alpha %v, want %v", out.KrippendorffAlpha, al.Alpha)
 			}
 			// The consensus is the fit with gold held fixed.
-			ds, err := agreement.DawidSkene(v, agreement.DawidSkeneOptions{Fixed: gold})
+			ds, err := agreement.DawidSkene(v, agreement.DawidSkeneOptions{Fixed: gold, Smoothing: 0.01})
 			if err != nil {
 				t.Fatal(err)
 			}

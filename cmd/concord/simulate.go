@@ -140,7 +140,7 @@ func parseSimulateFlags(e *env, args []string) (simOptions, error) {
 	fs.BoolVar(&opt.json, "json", false, "print JSON instead of a table")
 	fs.IntVar(&opt.minVotes, "min-votes", 2, "adaptive policy: votes every item gets before the first fit")
 	fs.IntVar(&opt.maxVotes, "max-votes", 7, "adaptive policy: votes after which an unsure item goes to review")
-	fs.StringVar(&targets, "targets", "0.90,0.95,0.99,0.995", "adaptive policy: confidence targets to compare, comma-separated")
+	fs.StringVar(&targets, "targets", "0.90,0.95,0.97,0.98,0.99,0.995", "adaptive policy: confidence targets to compare, comma-separated")
 	fs.IntVar(&opt.batch, "batch", 0, "adaptive policy: extra votes handed out between refits (0: a twentieth of the items)")
 	fs.Float64Var(&opt.smoothing, "smoothing", agreement.DefaultSmoothing, "Dawid-Skene pseudo-count per confusion cell")
 	if err := parseFlags(e, fs, args); err != nil {
