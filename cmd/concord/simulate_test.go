@@ -41,7 +41,7 @@ func TestSimulateJSON(t *testing.T) {
 		byName[p.Name] = p
 	}
 	want := []string{"majority-3", "majority-5", "majority-7", "dawid-skene-3", "dawid-skene-5", "dawid-skene-7",
-		"adaptive-0.9", "adaptive-0.95", "adaptive-0.99", "adaptive-0.995"}
+		"adaptive-0.9", "adaptive-0.95", "adaptive-0.97", "adaptive-0.98", "adaptive-0.99", "adaptive-0.995"}
 	if len(rep.Policies) != len(want) {
 		t.Errorf("%d policies, want %d", len(rep.Policies), len(want))
 	}
