@@ -91,8 +91,25 @@ type querier interface {
 	QueryRow(ctx context.Context, sql string, args ...any) pgx.Row
 }
 
-// inTx runs fn in a transaction, committing when fn returns nil.
+// inTx runs fn in a transaction, committing when fn returns nil. When
+// PostgreSQL aborts the transaction to break a deadlock or a serialization
+// conflict, fn runs again in a fresh transaction (up to txAttempts times):
+// both are normal under concurrent voting and refitting, and the retry is
+// safe because nothing of the aborted attempt was kept. fn must therefore
+// not have effects outside the transaction.
 func (s *Store) inTx(ctx context.Context, fn func(tx pgx.Tx) error) error {
+	var err error
+	for attempt := 1; attempt <= txAttempts; attempt++ {
+		if err = s.tryTx(ctx, fn); !retryable(err) {
+			return err
+		}
+	}
+	return err
+}
+
+const txAttempts = 4
+
+func (s *Store) tryTx(ctx context.Context, fn func(tx pgx.Tx) error) error {
 	tx, err := s.pool.Begin(ctx)
 	if err != nil {
 		return err
@@ -102,6 +119,12 @@ func (s *Store) inTx(ctx context.Context, fn func(tx pgx.Tx) error) error {
 		return err
 	}
 	return tx.Commit(ctx)
+}
+
+// retryable reports a deadlock (40P01) or serialization failure (40001).
+func retryable(err error) bool {
+	var pgErr *pgconn.PgError
+	return errors.As(err, &pgErr) && (pgErr.Code == "40P01" || pgErr.Code == "40001")
 }
 
 // mapErr turns pgx's no-rows and constraint errors into ErrNotFound and
