@@ -5,8 +5,6 @@ import (
 	"encoding/json"
 	"fmt"
 	"time"
-
-	"github.com/jackc/pgx/v5"
 )
 
 // Consensus methods as stored.
@@ -28,6 +26,10 @@ type ItemVotes struct {
 	GoldLabel *int64
 	FittedAt  time.Time
 	VoteCount int
+	// LoadModel reads the last fit's labeller estimates on the vote's own
+	// connection: a Decider must not take a second pooled connection while
+	// the vote's transaction holds one, or a busy pool deadlocks.
+	LoadModel func() (ProjectModel, error)
 }
 
 // ItemUpdate is an item's new state after a vote, decided by the caller
@@ -76,13 +78,14 @@ func itemVotes(ctx context.Context, q querier, projectID, itemID int64) (ItemVot
 		iv.FittedAt = *fitted
 	}
 	iv.VoteCount = len(iv.Labels)
+	iv.LoadModel = func() (ProjectModel, error) { return projectModel(ctx, q, projectID) }
 	return iv, nil
 }
 
-// applyItemUpdate writes an item's status and consensus.
-func applyItemUpdate(ctx context.Context, q querier, projectID, itemID int64, u ItemUpdate) error {
-	if _, err := q.Exec(ctx, `UPDATE items SET status = $2, votes_needed = $3, priority = $4 WHERE id = $1`,
-		itemID, u.Status, u.VotesNeeded, u.Priority); err != nil {
+// applyItemUpdate writes an item's status, vote count change and consensus.
+func applyItemUpdate(ctx context.Context, q querier, projectID, itemID int64, u ItemUpdate, delta int) error {
+	if _, err := q.Exec(ctx, `UPDATE items SET status = $2, votes_needed = $3, priority = $4, vote_count = vote_count + $5 WHERE id = $1`,
+		itemID, u.Status, u.VotesNeeded, u.Priority, delta); err != nil {
 		return err
 	}
 	if u.Consensus == nil {
@@ -144,12 +147,16 @@ type ProjectModel struct {
 // ProjectModel loads the labeller estimates of the last fit; ErrNotFound
 // before the first fit.
 func (s *Store) ProjectModel(ctx context.Context, projectID int64) (ProjectModel, error) {
+	return projectModel(ctx, s.pool, projectID)
+}
+
+func projectModel(ctx context.Context, q querier, projectID int64) (ProjectModel, error) {
 	m := ProjectModel{Accuracy: map[int64]float64{}, Votes: map[int64]int{}, Models: map[int64]*LabellerModel{}}
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		if err := tx.QueryRow(ctx, `SELECT fitted_at FROM project_stats WHERE project_id = $1`, projectID).Scan(&m.FittedAt); err != nil {
+	err := func() error {
+		if err := q.QueryRow(ctx, `SELECT fitted_at FROM project_stats WHERE project_id = $1`, projectID).Scan(&m.FittedAt); err != nil {
 			return err
 		}
-		rows, err := tx.Query(ctx, `SELECT user_id, votes, accuracy, confusion FROM labeller_stats WHERE project_id = $1`, projectID)
+		rows, err := q.Query(ctx, `SELECT user_id, votes, accuracy, confusion FROM labeller_stats WHERE project_id = $1`, projectID)
 		if err != nil {
 			return err
 		}
@@ -175,7 +182,7 @@ func (s *Store) ProjectModel(ctx context.Context, projectID int64) (ProjectModel
 			}
 		}
 		return rows.Err()
-	})
+	}()
 	if err != nil {
 		return ProjectModel{}, fmt.Errorf("labeller model of project %d: %w", projectID, mapErr(err))
 	}

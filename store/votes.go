@@ -59,11 +59,21 @@ func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decide
 	var res VoteResult
 	var claim *Claim
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		var err error
-		if res, err = recordVoteTx(ctx, tx, v, decide); err != nil || next == nil {
-			return err
+		// Claim first: the voted item's row stays locked from the vote
+		// to the commit, and other votes on it wait that long.
+		if next != nil {
+			if err := claimOrNone(ctx, tx, *next, &claim); err != nil {
+				return err
+			}
 		}
-		return claimOrNone(ctx, tx, *next, &claim)
+		var err error
+		res, err = recordVoteTx(ctx, tx, v, decide)
+		if err == nil && claim != nil {
+			// The tally was read before the vote went in.
+			claim.Tally.Votes++
+			claim.Tally.Seconds += v.Seconds
+		}
+		return err
 	})
 	if errors.Is(err, errNotInserted) {
 		res, err = s.repeatedVote(ctx, v)
@@ -92,8 +102,8 @@ func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, out **Claim) 
 	return nil
 }
 
-// voteSQL deletes the claim, inserts the vote and counts it in one
-// statement. A paused or blocked member's claim does not match, so their
+// voteSQL deletes the claim, inserts the vote and locks the item row (the
+// count goes up with the item's new status, in one row version). A paused or blocked member's claim does not match, so their
 // vote is refused like one without a claim.
 const voteSQL = `
 WITH lbl AS (
@@ -109,13 +119,13 @@ WITH lbl AS (
 	SELECT $1, $2, $3, $4, coalesce($5, (SELECT id FROM lbl)), $6 FROM c
 	ON CONFLICT (id) DO NOTHING
 	RETURNING label_id
-), upd AS (
-	UPDATE items SET vote_count = vote_count + 1
+), lock AS (
+	SELECT id FROM items
 	WHERE id = $3 AND EXISTS (SELECT 1 FROM ins WHERE label_id IS NOT NULL)
-	RETURNING id
+	FOR UPDATE
 )
 SELECT EXISTS (SELECT 1 FROM ins), (SELECT label_id FROM ins),
-	$7::text IS NULL OR EXISTS (SELECT 1 FROM lbl), (SELECT count(*) FROM upd)`
+	$7::text IS NULL OR EXISTS (SELECT 1 FROM lbl), (SELECT count(*) FROM lock)`
 
 func recordVoteTx(ctx context.Context, tx pgx.Tx, v NewVote, decide Decider) (VoteResult, error) {
 	var res VoteResult
@@ -139,7 +149,7 @@ func recordVoteTx(ctx context.Context, tx pgx.Tx, v NewVote, decide Decider) (Vo
 		err := tx.QueryRow(ctx, `SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).Scan(&res.GoldLabel)
 		return res, err
 	}
-	return res, updateItem(ctx, tx, v.ProjectID, v.ItemID, decide, &res.GoldLabel)
+	return res, updateItem(ctx, tx, v.ProjectID, v.ItemID, decide, &res.GoldLabel, 1)
 }
 
 // repeatedVote answers a vote that was not inserted: a retry of a stored
@@ -164,22 +174,23 @@ func (s *Store) repeatedVote(ctx context.Context, v NewVote) (VoteResult, error)
 
 var errNotInserted = errors.New("vote not inserted")
 
-// updateItem recomputes an item's state through decide, unless it is a
-// gold item, whose answer is fixed.
-func updateItem(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide Decider, gold **int64) error {
+// updateItem changes the item's vote count by delta and recomputes its
+// state through decide, unless it is a gold item, whose answer is fixed.
+func updateItem(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide Decider, gold **int64, delta int) error {
 	iv, err := itemVotes(ctx, tx, projectID, itemID)
 	if err != nil {
 		return err
 	}
 	*gold = iv.GoldLabel
 	if iv.GoldLabel != nil || decide == nil {
-		return nil
+		_, err := tx.Exec(ctx, `UPDATE items SET vote_count = vote_count + $2 WHERE id = $1`, itemID, delta)
+		return err
 	}
 	u, err := decide(ctx, iv)
 	if err != nil {
 		return err
 	}
-	return applyItemUpdate(ctx, tx, projectID, itemID, u)
+	return applyItemUpdate(ctx, tx, projectID, itemID, u, delta)
 }
 
 // UndoLastVote deletes the labeller's latest vote in the project if it is
@@ -200,11 +211,6 @@ func (s *Store) UndoLastVote(ctx context.Context, projectID, labellerID int64, w
 		if err != nil {
 			return err
 		}
-		if label != nil {
-			if _, err := tx.Exec(ctx, `UPDATE items SET vote_count = vote_count - 1 WHERE id = $1`, itemID); err != nil {
-				return err
-			}
-		}
 		_, err = tx.Exec(ctx, `
 			INSERT INTO claims (item_id, labeller_id, project_id, expires_at)
 			VALUES ($1, $2, $3, now() + make_interval(secs => $4))
@@ -214,8 +220,12 @@ func (s *Store) UndoLastVote(ctx context.Context, projectID, labellerID int64, w
 			return err
 		}
 		if label != nil {
+			// Lock the row before reading the item's votes, as a vote does.
+			if _, err := tx.Exec(ctx, `SELECT 1 FROM items WHERE id = $1 FOR UPDATE`, itemID); err != nil {
+				return err
+			}
 			var gold *int64
-			if err := updateItem(ctx, tx, projectID, itemID, decide, &gold); err != nil {
+			if err := updateItem(ctx, tx, projectID, itemID, decide, &gold, -1); err != nil {
 				return err
 			}
 		}
