@@ -82,18 +82,18 @@ func itemVotes(ctx context.Context, q querier, projectID, itemID int64) (ItemVot
 	return iv, nil
 }
 
-// applyItemUpdate writes an item's status, vote count change and consensus.
+// applyItemUpdate writes an item's status, vote count change and
+// consensus in one statement.
 func applyItemUpdate(ctx context.Context, q querier, projectID, itemID int64, u ItemUpdate, delta int) error {
-	if _, err := q.Exec(ctx, `UPDATE items SET status = $2, votes_needed = $3, priority = $4, vote_count = vote_count + $5 WHERE id = $1`,
-		itemID, u.Status, u.VotesNeeded, u.Priority, delta); err != nil {
-		return err
-	}
 	if u.Consensus == nil {
-		_, err := q.Exec(ctx, `DELETE FROM consensus WHERE item_id = $1`, itemID)
+		_, err := q.Exec(ctx, `
+			WITH u AS (UPDATE items SET status = $2, votes_needed = $3, priority = $4, vote_count = vote_count + $5 WHERE id = $1)
+			DELETE FROM consensus WHERE item_id = $1`, itemID, u.Status, u.VotesNeeded, u.Priority, delta)
 		return err
 	}
 	c := u.Consensus
 	_, err := q.Exec(ctx, `
+		WITH u AS (UPDATE items SET status = $12, votes_needed = $13, priority = $14, vote_count = vote_count + $15 WHERE id = $1)
 		INSERT INTO consensus (item_id, project_id, label_id, confidence, method, vote_count, tied,
 			rollup_label_id, rollup_confidence, posterior_labels, posterior, updated_at)
 		VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, now())
@@ -102,7 +102,7 @@ func applyItemUpdate(ctx context.Context, q querier, projectID, itemID int64, u 
 			rollup_label_id = excluded.rollup_label_id, rollup_confidence = excluded.rollup_confidence,
 			posterior_labels = excluded.posterior_labels, posterior = excluded.posterior, updated_at = now()`,
 		itemID, projectID, c.LabelID, c.Confidence, c.Method, c.VoteCount, c.Tied, c.RollupLabelID,
-		c.RollupConfidence, nonNil(c.PosteriorLabels), nonNilF(c.Posterior))
+		c.RollupConfidence, nonNil(c.PosteriorLabels), nonNilF(c.Posterior), u.Status, u.VotesNeeded, u.Priority, delta)
 	return err
 }
 
