@@ -102,6 +102,32 @@ func (e *engine) model(st *store.Store, projectID int64, fittedAt time.Time) *fi
 	return m
 }
 
+// modelFor returns the fit the vote path should use for iv. When the
+// cache is older than the fit iv saw, it loads the fit through iv.LoadModel,
+// on the vote transaction's own connection (no second pooled connection,
+// so no starvation), and the vote is decided with the current fit; without
+// a loader it falls back to model's background reload.
+func (e *engine) modelFor(st *store.Store, projectID int64, iv store.ItemVotes) *fitModel {
+	if iv.LoadModel == nil {
+		return e.model(st, projectID, iv.FittedAt)
+	}
+	e.mu.Lock()
+	m := e.models[projectID]
+	e.mu.Unlock()
+	if m != nil && m.fittedAt.Equal(iv.FittedAt) {
+		return m
+	}
+	pm, err := iv.LoadModel()
+	if err != nil {
+		return m
+	}
+	m = buildFitModel(pm)
+	e.mu.Lock()
+	e.models[projectID] = m
+	e.mu.Unlock()
+	return m
+}
+
 // reload loads a project's fit into the cache on a connection of its own.
 func (e *engine) reload(st *store.Store, projectID int64) {
 	ctx, cancel := context.WithTimeout(context.Background(), time.Minute)
@@ -193,7 +219,7 @@ func (s *Server) decider(p *store.Project) store.Decider {
 			return store.ItemUpdate{Status: "unstarted", VotesNeeded: max(p.Policy.MinVotes, 1)}, nil
 		}
 		if !iv.FittedAt.IsZero() {
-			if m := s.engine().model(s.store, p.ID, iv.FittedAt); m != nil && m.k > 0 {
+			if m := s.engine().modelFor(s.store, p.ID, iv); m != nil && m.k > 0 {
 				if u, ok := m.decide(iv, pol); ok {
 					return u, nil
 				}
