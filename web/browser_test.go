@@ -9,84 +9,126 @@ import (
 	"time"
 
 	"github.com/chromedp/chromedp"
+	"github.com/google/go-cmp/cmp"
+
+	"github.com/concord-labs/concord/store"
 )
 
 const chromiumPath = "/usr/bin/chromium"
 
-// TestBrowserLabelling drives headless Chromium: a labeller logs in and
-// labels by keyboard alone (choose, can't tell, skip, undo), and the votes
-// are then read back from the database.
-func TestBrowserLabelling(t *testing.T) {
+// browser is a headless Chromium tab logged in as a labeller.
+type browser struct {
+	t   *testing.T
+	ctx context.Context
+}
+
+// newBrowser starts Chromium and logs u in, or skips the test when
+// Chromium is missing.
+func newBrowser(t *testing.T, e *testEnv, u store.User) *browser {
+	t.Helper()
 	if testing.Short() {
 		t.Skip("browser test skipped in -short mode")
 	}
 	if _, err := os.Stat(chromiumPath); err != nil {
 		t.Skipf("Chromium is not installed at %s (apt-get install -y --no-install-recommends chromium; .ci/run installs it)", chromiumPath)
 	}
-	e := newTestEnv(t)
-	p := e.project()
-	e.drawnItems(p, 10)
-	u := e.member(p)
-	lab := e.labelIDs(p)
-
 	opts := append(chromedp.DefaultExecAllocatorOptions[:], chromedp.ExecPath(chromiumPath), chromedp.NoSandbox,
 		chromedp.DisableGPU, chromedp.Flag("disable-quic", true), chromedp.Flag("disable-component-update", true),
 		chromedp.UserDataDir(t.TempDir()), chromedp.WindowSize(1280, 900))
 	actx, cancelAlloc := chromedp.NewExecAllocator(context.Background(), opts...)
-	defer cancelAlloc()
+	t.Cleanup(cancelAlloc)
 	ctx, cancel := chromedp.NewContext(actx)
-	defer cancel()
+	t.Cleanup(cancel)
 	if err := chromedp.Do(ctx); err != nil { // start the browser before any timeout
 		t.Fatal(err)
 	}
 	ctx, cancelTimeout := context.WithTimeout(ctx, 60*time.Second)
-	defer cancelTimeout()
-
-	step := func(what string, actions ...chromedp.Action[chromedp.Void]) {
-		t.Helper()
-		if err := chromedp.Do(ctx, actions...); err != nil {
-			status, _ := chromedp.Run(ctx, chromedp.Evaluate[string](`document.getElementById("lab-status").textContent + " | votes " + document.getElementById("lab-votes").textContent + " | search " + document.getElementById("lab-search").value + " | focus " + (document.activeElement && document.activeElement.id)`))
-			t.Fatalf("%s: %v (screen says %q)", what, err, status)
-		}
-	}
-	// waitVotes waits for the server's tally to reach n.
-	waitVotes := func(n int) chromedp.Action[chromedp.Void] {
-		return chromedp.Steps(
-			chromedp.Func(func(ctx context.Context, tg *chromedp.Target) error {
-				_, err := chromedp.Poll[bool](`document.getElementById("lab-votes").textContent === "`+strconv.Itoa(n)+`" && !document.getElementById("lab-image").hidden`,
-					chromedp.WithPollingTimeout(10*time.Second))(ctx, tg)
-				return err
-			}),
-		)
-	}
-	imageShown := chromedp.Func(func(ctx context.Context, tg *chromedp.Target) error {
-		_, err := chromedp.Poll[bool](`(function(){var i=document.getElementById("lab-image");return !i.hidden && i.complete && i.naturalWidth > 0})()`,
-			chromedp.WithPollingTimeout(10*time.Second))(ctx, tg)
-		return err
-	})
-
-	step("log in",
+	t.Cleanup(cancelTimeout)
+	b := &browser{t: t, ctx: ctx}
+	b.step("log in",
 		chromedp.Navigate(e.ts.URL+"/login"),
 		chromedp.WaitVisible(chromedp.CSS(`input[name=login]`)),
 		chromedp.SendKeys(chromedp.CSS(`input[name=login]`), u.Login),
 		chromedp.SendKeys(chromedp.CSS(`input[name=password]`), testPassword+"\r"),
 		chromedp.WaitVisible(chromedp.CSS(`.cards`)),
 	)
-	step("open the labelling screen",
-		chromedp.Navigate(e.ts.URL+"/p/"+p.Slug+"/label"),
-		imageShown,
-	)
+	return b
+}
+
+// step runs actions, failing the test with what the screen says.
+func (b *browser) step(what string, actions ...chromedp.Action[chromedp.Void]) {
+	b.t.Helper()
+	if err := chromedp.Do(b.ctx, actions...); err != nil {
+		status, _ := chromedp.Run(b.ctx, chromedp.Evaluate[string](`document.getElementById("lab-status").textContent + " | votes " + document.getElementById("lab-votes").textContent + " | path " + document.getElementById("lab-path").textContent`))
+		b.t.Fatalf("%s: %v (screen says %q)", what, err, status)
+	}
+}
+
+// poll waits until a JavaScript expression is true.
+func poll(expr string) chromedp.Action[chromedp.Void] {
+	return chromedp.Func(func(ctx context.Context, tg *chromedp.Target) error {
+		_, err := chromedp.Poll[bool](expr, chromedp.WithPollingTimeout(10*time.Second))(ctx, tg)
+		return err
+	})
+}
+
+// waitVotes waits for the server's tally to reach n with an image shown.
+func waitVotes(n int) chromedp.Action[chromedp.Void] {
+	return poll(`document.getElementById("lab-votes").textContent === "` + strconv.Itoa(n) + `" && !document.getElementById("lab-image").hidden`)
+}
+
+var imageShown = poll(`(function(){var i=document.getElementById("lab-image");return !i.hidden && i.complete && i.naturalWidth > 0})()`)
+
+// votedKeys lists u's votes in p oldest first, as label keys, with the
+// sum of their times.
+func votedKeys(t *testing.T, e *testEnv, p store.Project, u store.User) (keys []string, seconds float64) {
+	t.Helper()
+	votes, err := e.store.VotesOfLabeller(context.Background(), p.ID, u.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	names := map[int64]string{}
+	for k, id := range e.labelIDs(p) {
+		names[id] = k
+	}
+	items := map[int64]bool{}
+	for i := len(votes) - 1; i >= 0; i-- {
+		v := votes[i]
+		if items[v.ItemID] {
+			t.Errorf("two votes on item %d", v.ItemID)
+		}
+		items[v.ItemID] = true
+		if v.LabelID == nil {
+			keys = append(keys, "can't tell")
+		} else {
+			keys = append(keys, names[*v.LabelID])
+		}
+		seconds += v.Seconds
+	}
+	return keys, seconds
+}
+
+// TestBrowserLabelling drives headless Chromium: a labeller logs in and
+// labels by keyboard alone (choose, can't tell, skip, undo, search), and the
+// votes are then read back from the database.
+func TestBrowserLabelling(t *testing.T) {
+	e := newTestEnv(t)
+	p := e.project()
+	e.drawnItems(p, 10)
+	u := e.member(p)
+	b := newBrowser(t, e, u)
+	b.step("open the labelling screen", chromedp.Navigate(e.ts.URL+"/p/"+p.Slug+"/label"), imageShown)
 	// Three leaves fit on one level: 1 PET bottle, 2 Plastic film, 3 glass.
-	step("vote glass with 3", chromedp.KeyEvent("3"), waitVotes(1), imageShown)
-	step("vote PET bottle with 1", chromedp.KeyEvent("1"), waitVotes(2), imageShown)
-	step("can't tell with 0", chromedp.KeyEvent("0"), waitVotes(3), imageShown)
-	step("skip with s", chromedp.KeyEvent("s"), imageShown)
-	step("vote plastic film with 2", chromedp.KeyEvent("2"), waitVotes(4), imageShown)
-	step("vote glass with 3, then undo with u", chromedp.KeyEvent("3"), waitVotes(5), chromedp.KeyEvent("u"), waitVotes(4), imageShown)
-	step("search with / and pick the first match with Enter",
+	b.step("vote glass with 3", chromedp.KeyEvent("3"), waitVotes(1), imageShown)
+	b.step("vote PET bottle with 1", chromedp.KeyEvent("1"), waitVotes(2), imageShown)
+	b.step("can't tell with 0", chromedp.KeyEvent("0"), waitVotes(3), imageShown)
+	b.step("skip with s", chromedp.KeyEvent("s"), imageShown)
+	b.step("vote plastic film with 2", chromedp.KeyEvent("2"), waitVotes(4), imageShown)
+	b.step("vote glass with 3, then undo with u", chromedp.KeyEvent("3"), waitVotes(5), chromedp.KeyEvent("u"), waitVotes(4), imageShown)
+	b.step("search with / and pick the first match with Enter",
 		chromedp.KeyEvent("/"), chromedp.KeyEvent("film"), chromedp.KeyEvent("\r"), waitVotes(5), imageShown)
 
-	shot, err := chromedp.Run(ctx, chromedp.CaptureScreenshot())
+	shot, err := chromedp.Run(b.ctx, chromedp.CaptureScreenshot())
 	if err != nil {
 		t.Fatal(err)
 	}
@@ -95,43 +137,55 @@ func TestBrowserLabelling(t *testing.T) {
 		os.WriteFile(filepath.Join(dir, "label.png"), shot, 0o644)
 	}
 
-	votes, err := e.store.VotesOfLabeller(context.Background(), p.ID, u.ID)
-	if err != nil {
-		t.Fatal(err)
-	}
-	var got []string
-	total := 0.0
-	names := map[int64]string{}
-	for k, id := range lab {
-		names[id] = k
-	}
-	for i := len(votes) - 1; i >= 0; i-- { // oldest first
-		if votes[i].LabelID == nil {
-			got = append(got, "can't tell")
-		} else {
-			got = append(got, names[*votes[i].LabelID])
-		}
-		total += votes[i].Seconds
-	}
-	// A test presses keys within milliseconds; the time kept is rounded
-	// to 0.1 s, so only the sum is sure to be positive.
+	got, total := votedKeys(t, e, p, u)
+	// A test presses keys within milliseconds; only the sum of the times
+	// is sure to be positive.
 	if total <= 0 {
 		t.Errorf("no time recorded on any vote")
 	}
 	want := []string{"glass", "pet-bottle", "can't tell", "plastic-film", "plastic-film"}
-	if len(got) != len(want) {
-		t.Fatalf("votes in the database = %v, want %v", got, want)
+	if diff := cmp.Diff(want, got); diff != "" {
+		t.Errorf("votes in the database (-want +got):\n%s", diff)
 	}
-	for i := range want {
-		if got[i] != want[i] {
-			t.Fatalf("votes in the database = %v, want %v", got, want)
-		}
+}
+
+// TestBrowserDrillDown labels with a taxonomy of more than nine leaves:
+// the labeller opens a group with its number, votes inside it, votes for
+// the group itself with Enter, and backs out with Escape.
+func TestBrowserDrillDown(t *testing.T) {
+	e := newTestEnv(t)
+	ctx := context.Background()
+	in := []store.LabelInput{{Key: "plastic", Parent: -1}}
+	for _, k := range []string{"pet-bottle", "hdpe-bottle", "plastic-film", "foam-tray", "yoghurt-pot"} {
+		in = append(in, store.LabelInput{Key: k, Parent: 0})
 	}
-	items := map[int64]bool{}
-	for _, v := range votes {
-		if items[v.ItemID] {
-			t.Errorf("two votes on item %d", v.ItemID)
-		}
-		items[v.ItemID] = true
+	in = append(in, store.LabelInput{Key: "metal", Parent: -1})
+	for _, k := range []string{"aluminium-can", "steel-can", "foil", "aerosol"} {
+		in = append(in, store.LabelInput{Key: k, Parent: 6})
+	}
+	in = append(in, store.LabelInput{Key: "glass", Description: "Bottles and jars of any colour", Parent: -1})
+	p, err := e.store.CreateProjectWithTaxonomy(ctx, store.Project{Slug: uniq("deep"), Name: "Deep line"}, in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	e.drawnItems(p, 6)
+	u := e.member(p)
+	b := newBrowser(t, e, u)
+	b.step("open the labelling screen", chromedp.Navigate(e.ts.URL+"/p/"+p.Slug+"/label"), imageShown)
+	// Ten leaves: the first level shows the three top labels.
+	b.step("top level", poll(`document.querySelectorAll("#lab-choices button").length === 3`))
+	b.step("open metal with 2, vote steel can with 2",
+		chromedp.KeyEvent("2"), poll(`document.getElementById("lab-path").textContent === "metal"`),
+		chromedp.KeyEvent("2"), waitVotes(1), imageShown)
+	b.step("open plastic with 1, vote plastic itself with Enter",
+		chromedp.KeyEvent("1"), poll(`document.querySelectorAll("#lab-choices button").length === 5`),
+		chromedp.KeyEvent("\r"), waitVotes(2), imageShown)
+	b.step("open plastic, back out with Escape, vote glass with 3",
+		chromedp.KeyEvent("1"), poll(`document.getElementById("lab-path").textContent === "plastic"`),
+		chromedp.KeyEvent("\x1b"), poll(`document.getElementById("lab-path").textContent === "All labels"`),
+		chromedp.KeyEvent("3"), waitVotes(3), imageShown)
+	got, _ := votedKeys(t, e, p, u)
+	if diff := cmp.Diff([]string{"steel-can", "plastic", "glass"}, got); diff != "" {
+		t.Errorf("votes in the database (-want +got):\n%s", diff)
 	}
 }
