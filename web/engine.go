@@ -46,17 +46,17 @@ type engine struct {
 	loading map[int64]bool
 }
 
-// engines maps a Server to its engine. Server's struct lives in server.go,
-// which another file owner keeps; a field there would be the tidier home.
-var engines sync.Map
-
-func (s *Server) engine() *engine {
-	if e, ok := engines.Load(s); ok {
-		return e.(*engine)
+func newEngine(interval time.Duration, minVotes int64) *engine {
+	if interval <= 0 {
+		interval = DefaultEngineInterval
 	}
-	e, _ := engines.LoadOrStore(s, &engine{Interval: DefaultEngineInterval, MinVotes: DefaultEngineVotes, models: map[int64]*fitModel{}})
-	return e.(*engine)
+	if minVotes <= 0 {
+		minVotes = DefaultEngineVotes
+	}
+	return &engine{Interval: interval, MinVotes: minVotes, models: map[int64]*fitModel{}}
 }
+
+func (s *Server) engine() *engine { return s.eng }
 
 // SetEngineSchedule changes how often the refit loop runs (for serve flags
 // and tests); zero values keep the defaults.

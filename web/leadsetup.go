@@ -48,7 +48,7 @@ func (d setupData) val(name, stored string) string {
 
 // importRoot is the only server folder a lead may import from: a folder
 // path typed into a web form must not reach the rest of the file system.
-func (s *Server) importRoot() string { return filepath.Join(s.cfg.DataDir, "import") }
+func (s *Server) importRoot() string { return s.cfg.ImportRoot }
 
 func (s *Server) blobs() (blob.Store, error) { return blob.NewLocal(s.cfg.DataDir) }
 

@@ -10,6 +10,7 @@ import (
 	"context"
 	"log/slog"
 	"net/http"
+	"path/filepath"
 	"time"
 
 	"github.com/a-h/templ"
@@ -28,6 +29,14 @@ type Config struct {
 	BaseURL string
 	// DataDir holds the image store (originals and thumbnails).
 	DataDir string
+	// ImportRoot is the only server folder the lead pages may import
+	// images from ("" = DataDir/import).
+	ImportRoot string
+	// EngineInterval and EngineVotes set when the refit loop refits a
+	// project: once both this much time and this many new votes have
+	// passed (zero = the defaults, 5 s and 200 votes).
+	EngineInterval time.Duration
+	EngineVotes    int64
 }
 
 // Server holds everything the handlers need.
@@ -37,6 +46,7 @@ type Server struct {
 	cfg    Config
 	now    func() time.Time
 	assets *assets
+	eng    *engine
 }
 
 // New builds a Server. log may be nil (logs are then discarded).
@@ -47,7 +57,11 @@ func New(s *store.Store, log *slog.Logger, cfg Config) *Server {
 	if cfg.SessionTTL == 0 {
 		cfg.SessionTTL = 12 * time.Hour
 	}
-	return &Server{store: s, log: log, cfg: cfg, now: time.Now, assets: staticAssets}
+	if cfg.ImportRoot == "" {
+		cfg.ImportRoot = filepath.Join(cfg.DataDir, "import")
+	}
+	return &Server{store: s, log: log, cfg: cfg, now: time.Now, assets: staticAssets,
+		eng: newEngine(cfg.EngineInterval, cfg.EngineVotes)}
 }
 
 // render writes a component into a buffer first, so a failed render becomes

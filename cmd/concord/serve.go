@@ -31,6 +31,9 @@ func bindServeFlags(fs *flag.FlagSet, c *serveConfig) {
 	fs.BoolVar(&c.web.SecureCookies, "secure-cookies", false, "mark cookies Secure (set when users reach Concord over HTTPS)")
 	fs.StringVar(&c.web.BaseURL, "base-url", "", "public address for invite links (default: from each request)")
 	fs.DurationVar(&c.web.SessionTTL, "session-ttl", 12*time.Hour, "how long a login lasts")
+	fs.StringVar(&c.web.ImportRoot, "import-root", "", "the only server folder leads may import images from (default: DATA/import)")
+	fs.DurationVar(&c.web.EngineInterval, "refit-every", web.DefaultEngineInterval, "refit a project's Dawid-Skene model at most this often")
+	fs.Int64Var(&c.web.EngineVotes, "refit-votes", web.DefaultEngineVotes, "... and only after this many new votes")
 	fs.DurationVar(&c.shutdown, "shutdown-timeout", 15*time.Second, "how long to wait for requests in flight on SIGINT/SIGTERM")
 }
 
