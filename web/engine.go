@@ -209,6 +209,10 @@ func oneCoin(k int, acc float64) []float64 {
 	return out
 }
 
+// VoteDecider is the consensus update the vote handlers use, for callers
+// that record votes without HTTP (the demo's simulated crowd).
+func (s *Server) VoteDecider(p *store.Project) store.Decider { return s.decider(p) }
+
 // decider returns the vote path's Decider for a project: the item's
 // posterior from the last fit's confusion matrices and priors, or majority
 // vote before the first fit, then its status under the vote policy.

@@ -157,7 +157,8 @@ func setupDemo(ctx context.Context, out io.Writer, s *store.Store, srv *web.Serv
 	if open > 0 {
 		fmt.Fprintf(out, "Simulating %d labellers (%s) voting on %d items...\n", len(people), o.crowd, open)
 		run := &crowdRun{store: s, project: p, crowd: crowd, people: people, frameOf: frameOf, labelOf: labelOf,
-			refit: func(ctx context.Context) error { return demoRefit(ctx, srv, p.ID) }, out: out}
+			decide: srv.VoteDecider(&p),
+			refit:  func(ctx context.Context) error { return demoRefit(ctx, srv, p.ID) }, out: out}
 		if _, err := run.run(ctx); err != nil {
 			return res, err
 		}

@@ -116,8 +116,8 @@ type crowdRun struct {
 	people  []demoLabeller
 	frameOf map[int64]int    // item id -> frame
 	labelOf map[string]int64 // leaf key -> label id
-	// decide is the vote path's consensus update; nil leaves items to the
-	// refit, which is why the crowd works in waves (see run).
+	// decide is the vote path's consensus update, as for a vote over HTTP;
+	// the refit between waves then refines every item with a new fit.
 	decide store.Decider
 	refit  func(ctx context.Context) error
 	out    io.Writer
