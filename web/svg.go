@@ -282,7 +282,8 @@ func (c Heatmap) SVG() string {
 	left, topPad := 130.0, 110.0
 	w := left + cell*float64(len(c.Cols)) + 16
 	h := topPad + cell*float64(len(c.Rows)) + 16
-	w, h = math.Max(w, 320), math.Max(h, 200)
+	// Wide enough for the title (14 px bold runs about 8.5 px a character).
+	w, h = math.Max(math.Max(w, 320), 8.5*float64(len([]rune(c.Title)))+24), math.Max(h, 200)
 	var desc []string
 	text := func(r, col int) string {
 		if c.Text != nil {
