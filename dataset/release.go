@@ -187,7 +187,7 @@ func BuildRelease(in ReleaseInput) (*Release, error) {
 	if p.has(FormatCSV) {
 		rel.Files[ManifestCSV] = renderCSV(rel.Rows)
 	}
-	rj, err := renderReleaseJSON(in, rel)
+	rj, err := renderReleaseJSON(in, rel, "")
 	if err != nil {
 		return nil, err
 	}
@@ -294,7 +294,9 @@ const SplitRule = "Items are grouped by near-duplicate cluster and manifest grou
 	"(test over validation over train), so a test item never becomes a training item. Label shares per split follow " +
 	"the target only statistically: for labels with at least 1,000 groups, within about 5 percentage points."
 
-func renderReleaseJSON(in ReleaseInput, rel *Release) ([]byte, error) {
+// renderReleaseJSON writes release.json; reissued, when not empty, says
+// how a release rebuilt from its record differs from its first issue.
+func renderReleaseJSON(in ReleaseInput, rel *Release, reissued string) ([]byte, error) {
 	type tax struct {
 		Key    string `json:"key"`
 		Name   string `json:"name"`
@@ -332,11 +334,12 @@ func renderReleaseJSON(in ReleaseInput, rel *Release) ([]byte, error) {
 		Agreement      json.RawMessage           `json:"agreement,omitempty"`
 		Cost           string                    `json:"cost,omitempty"`
 		Taxonomy       []tax                     `json:"taxonomy"`
+		Reissued       string                    `json:"reissued,omitempty"`
 	}{
 		in.Params.Name, in.Project, in.Params.Seed,
 		map[string]int{"train": in.Params.Split[0], "validation": in.Params.Split[1], "test": in.Params.Split[2]},
 		in.Params.MinConfidence, levelName(in.Params.Level), in.Params.Formats, len(rel.Rows), totals, counts,
-		hex.EncodeToString(rel.ManifestSHA256[:]), SplitRule, in.Policy, nil, in.Cost, taxonomy,
+		hex.EncodeToString(rel.ManifestSHA256[:]), SplitRule, in.Policy, nil, in.Cost, taxonomy, reissued,
 	}
 	if len(in.Agreement) > 0 && json.Valid(in.Agreement) && string(in.Agreement) != "{}" {
 		doc.Agreement = in.Agreement

@@ -211,6 +211,52 @@ func (s *Store) ReleaseItems(ctx context.Context, releaseID int64) ([]ReleaseIte
 	return out, rows.Err()
 }
 
+// ReleasedItem is a release's recorded row with what its manifest line
+// takes from the item itself: the image's SHA-256 and media type (which
+// gives the file's extension). Items are content-addressed and never
+// change, so these are as they were when the release was cut.
+type ReleasedItem struct {
+	ReleaseItem
+	SHA256    [32]byte
+	MediaType string
+}
+
+// ReleasedItems returns a release's recorded rows by item id, each joined
+// to its item. A row whose item is gone (which the items_keep_released
+// trigger forbids) is an error, not a silently shorter release.
+func (s *Store) ReleasedItems(ctx context.Context, releaseID int64) ([]ReleasedItem, error) {
+	var n int
+	if err := s.pool.QueryRow(ctx, `SELECT item_count FROM releases WHERE id = $1`, releaseID).Scan(&n); err != nil {
+		return nil, fmt.Errorf("items of release %d: %w", releaseID, mapErr(err))
+	}
+	rows, err := s.pool.Query(ctx, `
+		SELECT ri.item_id, ri.split, ri.label_key, ri.confidence, ri.votes, ri.group_key, i.sha256, coalesce(i.media_type, '')
+		FROM release_items ri LEFT JOIN items i ON i.id = ri.item_id
+		WHERE ri.release_id = $1
+		ORDER BY ri.item_id`, releaseID)
+	if err != nil {
+		return nil, fmt.Errorf("items of release %d: %w", releaseID, err)
+	}
+	defer rows.Close()
+	out := make([]ReleasedItem, 0, n)
+	var sha []byte
+	for rows.Next() {
+		out = append(out, ReleasedItem{})
+		it := &out[len(out)-1]
+		if err := rows.Scan(&it.ItemID, &it.Split, &it.LabelKey, &it.Confidence, &it.Votes, &it.GroupKey, &sha, &it.MediaType); err != nil {
+			return nil, fmt.Errorf("items of release %d: %w", releaseID, err)
+		}
+		if len(sha) != 32 {
+			return nil, fmt.Errorf("items of release %d: item %d is no longer stored", releaseID, it.ItemID)
+		}
+		it.SHA256 = [32]byte(sha)
+	}
+	if err := rows.Err(); err != nil {
+		return nil, fmt.Errorf("items of release %d: %w", releaseID, err)
+	}
+	return out, nil
+}
+
 // PriorSplits returns, for every item in an earlier release of the project
 // cut with this seed and split, the split of the latest such release.
 //

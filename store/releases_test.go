@@ -6,6 +6,8 @@ import (
 	"strings"
 	"testing"
 
+	"github.com/google/go-cmp/cmp"
+
 	"github.com/concord-labs/concord/store"
 )
 
@@ -46,6 +48,16 @@ func TestReleasesRecordedOnceAndPinSplits(t *testing.T) {
 	}
 	if _, err := f.s.CreateRelease(ctx, rel, items); !errors.Is(err, store.ErrConflict) {
 		t.Errorf("same name again: %v, want ErrConflict", err)
+	}
+	// ReleasedItems joins each row to its item's hash and media type.
+	released, err := f.s.ReleasedItems(ctx, got.ID)
+	want := []store.ReleasedItem{{ReleaseItem: items[0], SHA256: newItem("r1.png", 0).SHA256, MediaType: "image/png"},
+		{ReleaseItem: items[1], SHA256: newItem("r2.png", 0).SHA256, MediaType: "image/png"}}
+	if diff := cmp.Diff(want, released); err != nil || diff != "" {
+		t.Errorf("ReleasedItems (-want +got):\n%s%v", diff, err)
+	}
+	if _, err := f.s.ReleasedItems(ctx, got.ID+1_000_000); !errors.Is(err, store.ErrNotFound) {
+		t.Errorf("ReleasedItems of no release: %v, want ErrNotFound", err)
 	}
 	pins, err := f.s.PriorSplits(ctx, f.project.ID, 9, 80, 10, 10)
 	if err != nil || pins[a] != "test" || pins[b] != "train" {
