@@ -1,7 +1,7 @@
 package web
 
 import (
-	"bytes"
+	"errors"
 	"fmt"
 	"net/http"
 	"strconv"
@@ -96,32 +96,21 @@ func (s *Server) createRelease(w http.ResponseWriter, r *http.Request) error {
 	return nil
 }
 
-// downloadRelease rebuilds a recorded release from the database and streams
-// it as .tar.gz. The rebuild must reproduce the recorded manifest checksum;
-// if the data changed so that it does not, the download is refused rather
-// than handing out files that differ from the record.
+// downloadRelease streams a recorded release as .tar.gz. It is rebuilt
+// from its own record (dataset.Releaser.Load), so later votes, items or
+// taxonomy changes leave it as it was cut; a record whose rows no longer
+// give the recorded manifest checksum has been altered, and is refused
+// rather than handed out as if it were the release.
 func (s *Server) downloadRelease(w http.ResponseWriter, r *http.Request) error {
 	ctx := r.Context()
 	p := projectFrom(ctx)
-	rec, err := s.store.ReleaseByName(ctx, p.ID, chi.URLParam(r, "name"))
+	rel, rec, err := (&dataset.Releaser{Store: s.store}).Load(ctx, p.ID, chi.URLParam(r, "name"))
+	if mm := (*dataset.RecordMismatchError)(nil); errors.As(err, &mm) {
+		s.log.Error("recorded release altered", "project", p.ID, "err", err)
+		return &userError{http.StatusInternalServerError, "This release's record does not match its checksum, so it was altered after it was cut; it cannot be downloaded. Ask an administrator to check the database."}
+	}
 	if err != nil {
 		return err
-	}
-	rp, err := recordParams(rec)
-	if err != nil {
-		return err
-	}
-	rs := &dataset.Releaser{Store: s.store}
-	in, err := rs.Input(ctx, p.ID, rp)
-	if err != nil {
-		return err
-	}
-	rel, err := dataset.BuildRelease(in)
-	if err != nil {
-		return err
-	}
-	if !bytes.Equal(rel.ManifestSHA256[:], rec.ManifestSHA256[:]) {
-		return &userError{http.StatusConflict, "This release can no longer be rebuilt byte for byte from the database (labels changed since); cut a new release."}
 	}
 	blobs, err := s.blobs()
 	if err != nil {
@@ -134,17 +123,4 @@ func (s *Server) downloadRelease(w http.ResponseWriter, r *http.Request) error {
 		s.log.Error("stream release", "release", rec.Name, "err", err)
 	}
 	return nil
-}
-
-func recordParams(rec store.Release) (dataset.ReleaseParams, error) {
-	rp := dataset.ReleaseParams{Name: rec.Name, Seed: rec.Seed, MinConfidence: rec.MinConfidence, Level: dataset.LevelLeaf}
-	var err error
-	if rp.Split, err = dataset.ParseFractions(fmt.Sprintf("%d/%d/%d", rec.SplitTrain, rec.SplitVal, rec.SplitTest)); err != nil {
-		return rp, err
-	}
-	if rec.Level != nil {
-		rp.Level = *rec.Level
-	}
-	rp.Formats, err = dataset.ParseFormats(rec.Formats)
-	return rp, err
 }
