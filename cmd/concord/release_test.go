@@ -4,12 +4,15 @@ import (
 	"bufio"
 	"bytes"
 	"context"
+	"crypto/sha256"
 	"errors"
 	"fmt"
 	"os"
 	"path/filepath"
 	"strings"
 	"testing"
+
+	"github.com/concord-labs/concord/store"
 )
 
 func TestReleaseCommand(t *testing.T) {
@@ -98,6 +101,50 @@ func TestReleaseCommand(t *testing.T) {
 	if !bytes.Equal(a, b) || len(a) == 0 {
 		t.Error("manifest.jsonl differs between two releases of the same inputs and seed")
 	}
+	// The project moves on: the sure PET bottles become aluminium cans and
+	// more images arrive. --existing writes r1 again as it was cut.
+	if _, err := s.Pool().Exec(ctx, `UPDATE consensus SET label_id = $2 WHERE project_id = $1 AND label_id = $3`,
+		p.ID, ids["aluminium-can"], ids["pet-bottle"]); err != nil {
+		t.Fatal(err)
+	}
+	more := t.TempDir()
+	for k := 30; k < 36; k++ {
+		writeTestFile(t, filepath.Join(more, fmt.Sprintf("%03d.png", k)), beltPNG(t, k))
+	}
+	if r := runConcord(t, "", []string{"import", "--project", "release-cli", "--data", data, more}); r.err != nil {
+		t.Fatalf("import: %v\n%s", r.err, r.stdout)
+	}
+	out3 := filepath.Join(t.TempDir(), "r1-again")
+	r = runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r1", "--data", data, "--existing", "--out", out3})
+	if r.err != nil {
+		t.Fatalf("release --existing: %v\n%s", r.err, r.stdout)
+	}
+	rec, err := s.ReleaseByName(ctx, p.ID, "r1")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if !strings.Contains(r.stdout, fmt.Sprintf(": 16 items, split 70/15/15, seed 7, level leaf, min confidence 0.95\nmanifest SHA-256 %x matches the record", rec.ManifestSHA256)) ||
+		!strings.Contains(r.stdout, "images: 16 hard-linked, 0 copied") {
+		t.Errorf("release --existing output:\n%s", r.stdout)
+	}
+	for _, name := range []string{"manifest.jsonl", "manifest.csv", "CARD.md"} {
+		a, _ := os.ReadFile(filepath.Join(out, name))
+		b, _ := os.ReadFile(filepath.Join(out3, name))
+		if len(a) == 0 || !bytes.Equal(a, b) {
+			t.Errorf("%s written again differs from the first issue", name)
+		}
+	}
+	if got, _ := os.ReadFile(filepath.Join(out3, "manifest.jsonl")); sha256.Sum256(got) != rec.ManifestSHA256 {
+		t.Error("manifest.jsonl written again does not have the recorded SHA-256")
+	}
+	if entries, _ := os.ReadDir(filepath.Join(out3, "train")); len(entries) == 0 {
+		t.Error("--existing wrote no image folders for a release cut with them")
+	}
+	r = runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r7", "--data", data, "--existing", "--out", t.TempDir()})
+	if r.err == nil || !errors.Is(r.err, store.ErrNotFound) {
+		t.Errorf("--existing of an unknown release: %v, want not found", r.err)
+	}
+
 	// A release name is used once; a non-empty folder is refused.
 	r = runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r2", "--data", data, "--out", t.TempDir()})
 	if r.err == nil || !strings.Contains(r.err.Error(), "conflict") {
@@ -112,6 +159,8 @@ func TestReleaseCommandUsage(t *testing.T) {
 		{"release", "--project", "p", "--name", "n", "--out", "o", "--level", "deep"},
 		{"release", "--project", "p", "--name", "n", "--out", "o", "--format", "xml"},
 		{"release", "--project", "p", "--name", "bad name", "--out", "o"},
+		{"release", "--project", "p", "--name", "n", "--out", "o", "--existing", "--split", "80/10/10"},
+		{"release", "--project", "p", "--name", "n", "--out", "o", "--existing", "--format", "jsonl"},
 	} {
 		r := runConcord(t, "", args)
 		var ue usageError
