@@ -4,9 +4,12 @@ import (
 	"bytes"
 	"context"
 	"crypto/sha256"
+	"encoding/hex"
 	"encoding/json"
 	"errors"
 	"path/filepath"
+	"strconv"
+	"strings"
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
@@ -152,5 +155,34 @@ func sameFiles(t *testing.T, a, b *dataset.Release) {
 	}
 	if a.ManifestSHA256 != b.ManifestSHA256 || len(a.Rows) != len(b.Rows) {
 		t.Errorf("manifest %x with %d rows, first issue %x with %d", b.ManifestSHA256, len(b.Rows), a.ManifestSHA256, len(a.Rows))
+	}
+}
+
+// BenchmarkReissue1M rebuilds a recorded release of a million items from
+// its rows in memory (the database read is not included): rows, both
+// manifests and the checksum check, release.json and the sums.
+func BenchmarkReissue1M(b *testing.B) {
+	in := benchInput(1_000_000)
+	rel, err := dataset.BuildRelease(in)
+	if err != nil {
+		b.Fatal(err)
+	}
+	p := in.Params
+	rec := store.Release{Name: p.Name, Seed: p.Seed, SplitTrain: p.Split[0], SplitVal: p.Split[1], SplitTest: p.Split[2],
+		MinConfidence: p.MinConfidence, Formats: strings.Join(p.Formats, ","), ItemCount: len(rel.Rows),
+		ManifestSHA256: rel.ManifestSHA256, Card: string(rel.Files[dataset.CardFile])}
+	items := make([]store.ReleasedItem, len(rel.Rows))
+	for i, r := range rel.Rows {
+		items[i] = store.ReleasedItem{ReleaseItem: store.ReleaseItem{ItemID: r.Item, Split: r.Split.String(), LabelKey: r.Label,
+			Confidence: r.Confidence, Votes: r.Votes, GroupKey: strconv.FormatInt(r.Group, 10)}, MediaType: "image/jpeg"}
+		hex.Decode(items[i].SHA256[:], []byte(r.SHA256))
+	}
+	b.ResetTimer()
+	for b.Loop() {
+		again, err := dataset.Reissue(rec, items, nil)
+		if err != nil {
+			b.Fatal(err)
+		}
+		b.ReportMetric(float64(len(again.Rows)), "rows")
 	}
 }

@@ -14,7 +14,20 @@ import (
 // groups, splits, labels (half of them from a posterior), both manifests,
 // release.json, the card and the checksums.
 func BenchmarkRelease1M(b *testing.B) {
-	const n = 1_000_000
+	in := benchInput(1_000_000)
+	b.ResetTimer()
+	for b.Loop() {
+		rel, err := dataset.BuildRelease(in)
+		if err != nil {
+			b.Fatal(err)
+		}
+		b.ReportMetric(float64(len(rel.Rows)), "rows")
+	}
+}
+
+// benchInput is a project of n items on a recycling taxonomy: a tenth near
+// copies, a few manifest groups, half the labels from a posterior.
+func benchInput(n int) dataset.ReleaseInput {
 	nodes := []dataset.TaxNode{
 		{ID: 1, Key: "plastic", Name: "Plastic", Depth: 0},
 		{ID: 2, ParentID: 1, Key: "pet-bottle", Name: "PET bottle", Depth: 1, IsLeaf: true},
@@ -47,15 +60,7 @@ func BenchmarkRelease1M(b *testing.B) {
 		}
 		items[i] = c
 	}
-	in := dataset.ReleaseInput{Params: params("bench"), Items: items, Taxonomy: nodes}
-	b.ResetTimer()
-	for b.Loop() {
-		rel, err := dataset.BuildRelease(in)
-		if err != nil {
-			b.Fatal(err)
-		}
-		b.ReportMetric(float64(len(rel.Rows)), "rows")
-	}
+	return dataset.ReleaseInput{Params: params("bench"), Items: items, Taxonomy: nodes}
 }
 
 // BenchmarkImportSmallPNG imports 64x64 PNGs into the test database,
