@@ -14,14 +14,23 @@ type LabellerWork struct {
 }
 
 // WorkByLabeller sums each labeller's votes and recorded seconds in the
-// project, most votes first. This is the one lead query that reads the
-// votes themselves (labeller_stats keeps no time totals); it is a single
-// grouped pass.
+// project, most votes first: the totals the last refit counted
+// (labeller_stats) plus the votes created since, a short range of the
+// (project_id, created_at) index, in one statement so both parts come from
+// one snapshot.
 func (s *Store) WorkByLabeller(ctx context.Context, projectID int64) ([]LabellerWork, error) {
 	rows, err := s.pool.Query(ctx, `
+		WITH `+countedUntil+`
 		SELECT `+userCols+`, w.n, w.labelled, w.seconds
-		FROM (SELECT labeller_id, count(*) AS n, count(label_id) AS labelled, coalesce(sum(seconds), 0)::float8 AS seconds
-			FROM votes WHERE project_id = $1 GROUP BY labeller_id) w
+		FROM (SELECT labeller_id, sum(n)::int AS n, sum(labelled)::int AS labelled, sum(seconds)::float8 AS seconds
+			FROM (
+				SELECT user_id AS labeller_id, votes_all AS n, votes_all - cant_tell AS labelled, seconds_total AS seconds
+				FROM labeller_stats WHERE project_id = $1 AND votes_all > 0
+				UNION ALL
+				SELECT v.labeller_id, count(*), count(v.label_id), coalesce(sum(v.seconds::float8), 0)
+				FROM votes v, counted c WHERE v.project_id = $1 AND v.created_at >= c.until
+				GROUP BY v.labeller_id
+			) x GROUP BY labeller_id) w
 		JOIN users u ON u.id = w.labeller_id
 		ORDER BY w.n DESC, u.login`, projectID)
 	if err != nil {
@@ -42,32 +51,10 @@ func (s *Store) WorkByLabeller(ctx context.Context, projectID int64) ([]Labeller
 }
 
 // LabelWork is the finished items of one consensus label and the labelled
-// votes they took.
+// votes they took, as of a refit (ProjectSummary.ByLabel).
 type LabelWork struct {
-	Key, Name string
-	Items     int
-	Votes     int
-}
-
-// WorkByLabel groups the project's finished items by consensus label, in
-// taxonomy key order. It reads items and consensus, not votes.
-func (s *Store) WorkByLabel(ctx context.Context, projectID int64) ([]LabelWork, error) {
-	rows, err := s.pool.Query(ctx, `
-		SELECT t.key, t.name, count(*), coalesce(sum(i.vote_count), 0)
-		FROM items i JOIN consensus c ON c.item_id = i.id JOIN taxonomy_nodes t ON t.id = c.label_id
-		WHERE i.project_id = $1 AND i.status = 'done'
-		GROUP BY t.key, t.name ORDER BY t.key`, projectID)
-	if err != nil {
-		return nil, fmt.Errorf("work by label in project %d: %w", projectID, err)
-	}
-	defer rows.Close()
-	var out []LabelWork
-	for rows.Next() {
-		var w LabelWork
-		if err := rows.Scan(&w.Key, &w.Name, &w.Items, &w.Votes); err != nil {
-			return nil, fmt.Errorf("work by label in project %d: %w", projectID, err)
-		}
-		out = append(out, w)
-	}
-	return out, rows.Err()
+	Key   string `json:"key"`
+	Name  string `json:"name"`
+	Items int    `json:"items"`
+	Votes int    `json:"votes"`
 }

@@ -7,39 +7,71 @@ import (
 	"time"
 
 	"github.com/jackc/pgx/v5"
+	"github.com/jackc/pgx/v5/pgtype"
 )
 
 // VoteColumns is a project's labelled votes as parallel columns, the
-// shape the agreement engine wants, without a struct per vote.
+// shape the agreement engine wants, without a struct per vote. CantTell
+// holds the "can't tell" votes apart: the fit ignores them, but they are
+// paid and count towards the pace.
 type VoteColumns struct {
 	Item     []int64
 	Labeller []int64
 	Label    []int64
 	Seconds  []float64
 	At       []time.Time
+	CantTell CantTellColumns
+	// CountUntil is a time before which every vote was committed when the
+	// votes were read: a vote's created_at is its transaction's start, so
+	// a vote begun just before the read may commit after it. Counts kept
+	// for the lead pages cover the votes created before CountUntil.
+	CountUntil time.Time
 }
 
-// Len is the number of votes.
+// CantTellColumns is the "can't tell" votes of a project, as columns.
+type CantTellColumns struct {
+	Labeller []int64
+	Seconds  []float64
+	At       []time.Time
+}
+
+// Len is the number of labelled votes.
 func (v *VoteColumns) Len() int { return len(v.Item) }
 
-// ProjectVotes loads every labelled vote of a project, oldest first, and
-// the total number of votes (can't-tell included) at that moment.
+// countMargin is how long before reading the votes CountUntil lies: longer
+// than any vote transaction lasts, so none created before CountUntil is
+// still uncommitted when the votes are read.
+const countMargin = time.Minute
+
+// ProjectVotes loads every vote of a project, oldest first: the labelled
+// ones as the engine's columns and the "can't tell" ones apart.
 func (s *Store) ProjectVotes(ctx context.Context, projectID int64) (VoteColumns, error) {
 	var out VoteColumns
+	if err := s.pool.QueryRow(ctx, `SELECT now() - make_interval(secs => $1)`, countMargin.Seconds()).Scan(&out.CountUntil); err != nil {
+		return out, fmt.Errorf("votes of project %d: %w", projectID, err)
+	}
 	rows, err := s.pool.Query(ctx, `
 		SELECT item_id, labeller_id, label_id, seconds, created_at FROM votes
-		WHERE project_id = $1 AND label_id IS NOT NULL ORDER BY created_at, id`, projectID)
+		WHERE project_id = $1 ORDER BY created_at, id`, projectID)
 	if err != nil {
 		return out, fmt.Errorf("votes of project %d: %w", projectID, err)
 	}
 	defer rows.Close()
-	var item, labeller, label int64
+	var item, labeller int64
+	var label pgtype.Int8
 	var secs float32
 	var at time.Time
 	_, err = pgx.ForEachRow(rows, []any{&item, &labeller, &label, &secs, &at}, func() error {
+		if !label.Valid {
+			ct := &out.CantTell
+			ct.Labeller = append(ct.Labeller, labeller)
+			ct.Seconds = append(ct.Seconds, float64(secs))
+			ct.At = append(ct.At, at)
+			return nil
+		}
 		out.Item = append(out.Item, item)
 		out.Labeller = append(out.Labeller, labeller)
-		out.Label = append(out.Label, label)
+		out.Label = append(out.Label, label.Int64)
 		out.Seconds = append(out.Seconds, float64(secs))
 		out.At = append(out.At, at)
 		return nil

@@ -93,13 +93,27 @@ type HourCount struct {
 	Votes int
 }
 
-// VotesPerHour counts the votes of each hour since since (hours without
-// votes are left out). It reads the (project_id, created_at) index.
+// VotesPerHour counts the votes of each UTC hour from the one containing
+// since (hours without votes are left out). It reads the hours the last
+// refit counted (project_vote_hours) and counts only the votes outside
+// them, each a range of the (project_id, created_at) index: those since the
+// count and, when since is further back than the count keeps, those
+// before its first hour.
 func (s *Store) VotesPerHour(ctx context.Context, projectID int64, since time.Time) ([]HourCount, error) {
+	since = since.UTC().Truncate(time.Hour)
 	rows, err := s.pool.Query(ctx, `
-		SELECT date_trunc('hour', created_at AT TIME ZONE 'UTC'), count(*)
-		FROM votes WHERE project_id = $1 AND created_at >= $2
-		GROUP BY 1 ORDER BY 1`, projectID, since)
+		WITH `+countedUntil+`
+		SELECT hour, sum(n) FROM (
+			SELECT h.hour, h.votes::bigint AS n FROM project_vote_hours h WHERE h.project_id = $1 AND h.hour >= $2
+			UNION ALL
+			SELECT date_trunc('hour', v.created_at, 'UTC'), count(*) FROM votes v, counted c
+			WHERE v.project_id = $1 AND v.created_at >= greatest($2, c.until)
+			GROUP BY 1
+			UNION ALL
+			SELECT date_trunc('hour', v.created_at, 'UTC'), count(*) FROM votes v, counted c
+			WHERE v.project_id = $1 AND v.created_at >= $2 AND v.created_at < least(c.kept, c.until)
+			GROUP BY 1
+		) x GROUP BY hour ORDER BY hour`, projectID, since)
 	if err != nil {
 		return nil, fmt.Errorf("votes per hour of project %d: %w", projectID, err)
 	}
@@ -110,21 +124,31 @@ func (s *Store) VotesPerHour(ctx context.Context, projectID int64, since time.Ti
 		if err := rows.Scan(&h.Hour, &h.Votes); err != nil {
 			return nil, fmt.Errorf("votes per hour of project %d: %w", projectID, err)
 		}
-		h.Hour = time.Date(h.Hour.Year(), h.Hour.Month(), h.Hour.Day(), h.Hour.Hour(), 0, 0, 0, time.UTC)
+		h.Hour = h.Hour.UTC()
 		out = append(out, h)
 	}
 	return out, rows.Err()
 }
 
 // ActiveLabellers counts the labellers who voted in the project since each
-// of the two times (say, one hour ago and the start of today).
+// of the two times (say, one hour ago and the start of today): those the
+// last refit saw vote since then (labeller_stats.last_vote_at) and those
+// with votes created after that count.
 func (s *Store) ActiveLabellers(ctx context.Context, projectID int64, recent, earlier time.Time) (sinceRecent, sinceEarlier int, err error) {
 	if recent.Before(earlier) {
 		recent, earlier = earlier, recent
 	}
 	err = s.pool.QueryRow(ctx, `
-		SELECT count(DISTINCT labeller_id) FILTER (WHERE created_at >= $2), count(DISTINCT labeller_id)
-		FROM votes WHERE project_id = $1 AND created_at >= $3`, projectID, recent, earlier).Scan(&sinceRecent, &sinceEarlier)
+		WITH `+countedUntil+`
+		SELECT count(*) FILTER (WHERE last >= $2), count(*) FROM (
+			SELECT labeller_id, max(at) AS last FROM (
+				SELECT user_id AS labeller_id, last_vote_at AS at FROM labeller_stats
+				WHERE project_id = $1 AND last_vote_at >= $3
+				UNION ALL
+				SELECT v.labeller_id, v.created_at FROM votes v, counted c
+				WHERE v.project_id = $1 AND v.created_at >= greatest($3, c.until)
+			) x GROUP BY labeller_id
+		) y`, projectID, recent, earlier).Scan(&sinceRecent, &sinceEarlier)
 	if err != nil {
 		return 0, 0, fmt.Errorf("active labellers of project %d: %w", projectID, err)
 	}

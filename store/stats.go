@@ -3,8 +3,12 @@ package store
 import (
 	"context"
 	"encoding/json"
+	"errors"
 	"fmt"
+	"strconv"
 	"time"
+
+	"github.com/jackc/pgx/v5"
 )
 
 // ProjectSummary is the agreement picture of a project as of the engine's
@@ -35,6 +39,10 @@ type ProjectSummary struct {
 	FinishedItems     int `json:"finished_items"`
 	FinishedVotes     int `json:"finished_votes"`
 	FixedVotesPerItem int `json:"fixed_votes_per_item"`
+	// ByLabel is the items done at the fit grouped by consensus label (a
+	// known answer for gold and lead-decided items), in key order, for the
+	// cost page. Nil in summaries written before it was kept.
+	ByLabel []LabelWork `json:"by_label"`
 }
 
 // Estimate is a statistic with its bootstrap interval and plain-words band.
@@ -103,3 +111,88 @@ func (s *Store) ProjectSummary(ctx context.Context, projectID int64) (ProjectSum
 	}
 	return sum, votesAtFit, nil
 }
+
+// VoteHoursKept is how many hours of votes per hour a count keeps: the
+// progress page's 7 days.
+const VoteHoursKept = 7 * 24
+
+// VoteCounts is what a refit counted of a project's votes for the lead
+// pages: every vote created before Until, "can't tell" included. The pages
+// add the votes created since Until from the votes table, a short range
+// of its (project_id, created_at) index.
+type VoteCounts struct {
+	Until     time.Time
+	Labellers []LabellerCount
+	// Hours holds the hours with votes among the VoteHoursKept hours that
+	// end with the one containing Until (see VoteHoursFrom), oldest first.
+	Hours []HourCount
+}
+
+// LabellerCount is one labeller's votes in a count.
+type LabellerCount struct {
+	UserID   int64
+	Votes    int // all, "can't tell" included: all are paid
+	CantTell int
+	Seconds  float64 // recorded seconds of those votes
+	LastVote time.Time
+}
+
+// VoteHoursFrom is the first hour a count up to until keeps votes per
+// hour for.
+func VoteHoursFrom(until time.Time) time.Time {
+	return until.UTC().Truncate(time.Hour).Add(-(VoteHoursKept - 1) * time.Hour)
+}
+
+// SaveVoteCounts stores a count in one transaction, so a page reads either
+// the old count with its Until or the new one with its own, never a mix.
+// The project's summary must have been saved first: Until is kept beside it.
+func (s *Store) SaveVoteCounts(ctx context.Context, projectID int64, c VoteCounts) error {
+	n := len(c.Labellers)
+	users, votes, cantTell := make([]int64, n), make([]int32, n), make([]int32, n)
+	secs, last := make([]float64, n), make([]time.Time, n)
+	for i, l := range c.Labellers {
+		users[i], votes[i], cantTell[i], secs[i], last[i] = l.UserID, int32(l.Votes), int32(l.CantTell), l.Seconds, l.LastVote
+	}
+	hours, hourVotes := make([]time.Time, len(c.Hours)), make([]int32, len(c.Hours))
+	for i, h := range c.Hours {
+		hours[i], hourVotes[i] = h.Hour, int32(h.Votes)
+	}
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		tag, err := tx.Exec(ctx, `UPDATE project_stats SET counted_until = $2 WHERE project_id = $1`, projectID, c.Until)
+		if err != nil {
+			return err
+		}
+		if tag.RowsAffected() != 1 {
+			return errors.New("no fit summary to keep the count beside")
+		}
+		b := &pgx.Batch{}
+		b.Queue(`
+			INSERT INTO labeller_stats (project_id, user_id, votes_all, cant_tell, seconds_total, last_vote_at)
+			SELECT $1, u.id, u.n, u.ct, u.secs, u.last
+			FROM unnest($2::bigint[], $3::int[], $4::int[], $5::float8[], $6::timestamptz[]) AS u(id, n, ct, secs, last)
+			ON CONFLICT (project_id, user_id) DO UPDATE SET votes_all = excluded.votes_all,
+				cant_tell = excluded.cant_tell, seconds_total = excluded.seconds_total, last_vote_at = excluded.last_vote_at`,
+			projectID, users, votes, cantTell, secs, last)
+		// A labeller whose votes are gone (their items deleted) must not
+		// keep an old total beside the new Until.
+		b.Queue(`
+			UPDATE labeller_stats SET votes_all = 0, cant_tell = 0, seconds_total = 0, last_vote_at = NULL
+			WHERE project_id = $1 AND user_id <> ALL($2) AND (votes_all > 0 OR last_vote_at IS NOT NULL)`, projectID, users)
+		b.Queue(`DELETE FROM project_vote_hours WHERE project_id = $1`, projectID)
+		b.Queue(`INSERT INTO project_vote_hours (project_id, hour, votes) SELECT $1, h, n FROM unnest($2::timestamptz[], $3::int[]) AS u(h, n)`,
+			projectID, hours, hourVotes)
+		return tx.SendBatch(ctx, b).Close()
+	})
+	if err != nil {
+		return fmt.Errorf("save vote counts of project %d: %w", projectID, mapErr(err))
+	}
+	return nil
+}
+
+// countedUntil is a CTE naming the project's ($1) last count: until is
+// -infinity before the first, so "votes since until" is every vote, and
+// kept is the first hour whose votes per hour the count keeps.
+var countedUntil = `counted AS (
+		SELECT coalesce(max(counted_until), '-infinity') AS until,
+			coalesce(date_trunc('hour', max(counted_until), 'UTC') - make_interval(hours => ` + strconv.Itoa(VoteHoursKept-1) + `), '-infinity') AS kept
+		FROM project_stats WHERE project_id = $1)`

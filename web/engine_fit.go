@@ -1,6 +1,7 @@
 package web
 
 import (
+	"cmp"
 	"context"
 	"fmt"
 	"math"
@@ -32,6 +33,7 @@ type fitData struct {
 	at        []time.Time
 	gold      map[int]int // dense item -> class
 	goldItems map[int64]bool
+	counts    store.VoteCounts // for the progress and cost pages
 }
 
 // loadFit reads a project's items, votes, known answers and taxonomy.
@@ -56,7 +58,8 @@ func (s *Server) loadFit(ctx context.Context, projectID int64) (*fitData, error)
 	if err != nil {
 		return nil, err
 	}
-	f := &fitData{project: p, labels: labels, itemIDs: itemIDs, gold: map[int]int{}, goldItems: map[int64]bool{}}
+	f := &fitData{project: p, labels: labels, itemIDs: itemIDs, gold: map[int]int{}, goldItems: map[int64]bool{},
+		counts: countVotes(&vc)}
 
 	// Classes are the labels in use (votes, known answers) and their
 	// ancestors, so the roll-up has every parent and a 10,000-label
@@ -206,8 +209,95 @@ func (s *Server) refit(ctx context.Context, projectID int64) error {
 	sum.FittedAt = start
 	sum.Iterations = ds.Iterations
 	sum.FinishedItems, sum.FinishedVotes, sum.FixedVotesPerItem = finished, finishedVotes, p.MaxVotes
+	sum.ByLabel = workByLabel(f, rows)
 	sum.FitMillis = int(s.now().Sub(start).Milliseconds())
-	return s.store.SaveProjectSummary(ctx, projectID, int64(f.votes.Len()), sum)
+	if err := s.store.SaveProjectSummary(ctx, projectID, int64(f.votes.Len()), sum); err != nil {
+		return err
+	}
+	return s.store.SaveVoteCounts(ctx, projectID, f.counts)
+}
+
+// countVotes counts the votes created before vc.CountUntil per labeller and
+// per hour, for the progress and cost pages. Votes created later are left
+// to the pages, which count them from the votes table.
+func countVotes(vc *store.VoteColumns) store.VoteCounts {
+	until := vc.CountUntil
+	out := store.VoteCounts{Until: until}
+	from := store.VoteHoursFrom(until)
+	per := map[int64]*store.LabellerCount{}
+	perHour := map[int64]int{} // unix hour -> votes
+	add := func(labeller int64, secs float64, at time.Time, cantTell bool) {
+		if !at.Before(until) {
+			return
+		}
+		l := per[labeller]
+		if l == nil {
+			l = &store.LabellerCount{UserID: labeller}
+			per[labeller] = l
+		}
+		l.Votes++
+		l.Seconds += secs
+		if cantTell {
+			l.CantTell++
+		}
+		if at.After(l.LastVote) {
+			l.LastVote = at
+		}
+		if !at.Before(from) {
+			perHour[at.Unix()/3600]++
+		}
+	}
+	for i := range vc.Len() {
+		add(vc.Labeller[i], vc.Seconds[i], vc.At[i], false)
+	}
+	ct := &vc.CantTell
+	for i := range ct.Labeller {
+		add(ct.Labeller[i], ct.Seconds[i], ct.At[i], true)
+	}
+	for _, l := range per {
+		out.Labellers = append(out.Labellers, *l)
+	}
+	slices.SortFunc(out.Labellers, func(a, b store.LabellerCount) int { return cmp.Compare(a.UserID, b.UserID) })
+	for h, n := range perHour {
+		out.Hours = append(out.Hours, store.HourCount{Hour: time.Unix(h*3600, 0).UTC(), Votes: n})
+	}
+	slices.SortFunc(out.Hours, func(a, b store.HourCount) int { return a.Hour.Compare(b.Hour) })
+	return out
+}
+
+// workByLabel groups the items the fit leaves done by consensus label, in
+// key order: the plans' done items with their consensus, and the items
+// with a known answer (always done) under that answer.
+func workByLabel(f *fitData, rows []store.ItemPlanRow) []store.LabelWork {
+	byID := map[int64]*store.LabelWork{}
+	add := func(labelID int64, votes int) {
+		w := byID[labelID]
+		if w == nil {
+			w = &store.LabelWork{}
+			byID[labelID] = w
+		}
+		w.Items++
+		w.Votes += votes
+	}
+	for _, r := range rows {
+		if r.Status == agreement.StatusDone.String() && r.Consensus != nil && r.Consensus.LabelID != nil {
+			add(*r.Consensus.LabelID, r.SeenVotes)
+		}
+	}
+	for i, id := range f.itemIDs {
+		if c, ok := f.gold[i]; ok && f.goldItems[id] {
+			add(f.classes[c], f.seen[i])
+		}
+	}
+	out := make([]store.LabelWork, 0, len(byID))
+	for _, l := range f.labels {
+		if w := byID[l.ID]; w != nil {
+			w.Key, w.Name = l.Key, l.Name
+			out = append(out, *w)
+		}
+	}
+	slices.SortFunc(out, func(a, b store.LabelWork) int { return cmp.Compare(a.Key, b.Key) })
+	return out
 }
 
 // saveLabellers stores each labeller's figures and pauses those whose

@@ -5,6 +5,7 @@ import (
 	"errors"
 	"net/http"
 	"strconv"
+	"time"
 
 	"github.com/concord-labs/concord/store"
 )
@@ -36,6 +37,9 @@ type costData struct {
 	SavedMoney   *float64
 	SavingsKnown bool
 	OverBudget   bool
+	// FittedAt is the last refit, which the savings and ByLabel are as of;
+	// nil before the first.
+	FittedAt *time.Time
 }
 
 // computeCost turns recorded work into money. Per vote: every vote is paid
@@ -76,6 +80,9 @@ func computeCost(p *store.Project, work []store.LabellerWork, counts store.Statu
 		d.Projected = &v
 		d.OverBudget = p.Pay.BudgetCap != nil && v > *p.Pay.BudgetCap
 	}
+	if sum != nil {
+		d.FittedAt, d.ByLabel = &sum.FittedAt, sum.ByLabel
+	}
 	if sum != nil && sum.FixedVotesPerItem > 0 {
 		d.SavingsKnown = true
 		d.SavedVotes = sum.FinishedItems*sum.FixedVotesPerItem - sum.FinishedVotes
@@ -104,11 +111,7 @@ func (s *Server) loadCost(r *http.Request) (costData, error) {
 	} else if !errors.Is(err, store.ErrNotFound) {
 		return costData{}, err
 	}
-	d := computeCost(p, work, counts, sum)
-	if d.ByLabel, err = s.store.WorkByLabel(ctx, p.ID); err != nil {
-		return costData{}, err
-	}
-	return d, nil
+	return computeCost(p, work, counts, sum), nil
 }
 
 func (s *Server) showCost(w http.ResponseWriter, r *http.Request) error {
