@@ -24,12 +24,16 @@ type StatusCounts struct {
 	VotesNeeded int64 // sum of votes_needed over unstarted and needs-votes items
 }
 
-// ProjectStatusCounts counts a project's items by status. It reads the
-// (project_id, status) index, never the votes.
+// ProjectStatusCounts counts a project's items by status. It never reads
+// the votes: the counts come from the (project_id, status) index alone,
+// and the votes needed from the open items only; one statement, so both
+// are of one moment.
 func (s *Store) ProjectStatusCounts(ctx context.Context, projectID int64) (StatusCounts, error) {
 	rows, err := s.pool.Query(ctx, `
-		SELECT status, count(*), coalesce(sum(votes_needed) FILTER (WHERE status IN ('unstarted', 'needs_votes')), 0)
-		FROM items WHERE project_id = $1 GROUP BY status`, projectID)
+		SELECT status, count(*), 0::bigint FROM items WHERE project_id = $1 GROUP BY status
+		UNION ALL
+		SELECT '', 0, coalesce(sum(votes_needed), 0) FROM items
+		WHERE project_id = $1 AND status IN ('unstarted', 'needs_votes')`, projectID)
 	if err != nil {
 		return StatusCounts{}, fmt.Errorf("status counts of project %d: %w", projectID, err)
 	}
@@ -42,8 +46,10 @@ func (s *Store) ProjectStatusCounts(ctx context.Context, projectID int64) (Statu
 		if err := rows.Scan(&st, &n, &need); err != nil {
 			return StatusCounts{}, fmt.Errorf("status counts of project %d: %w", projectID, err)
 		}
-		out.ByStatus[st] = n
-		out.Total += n
+		if st != "" {
+			out.ByStatus[st] = n
+			out.Total += n
+		}
 		out.VotesNeeded += need
 	}
 	return out, rows.Err()
@@ -101,33 +107,34 @@ type HourCount struct {
 // before its first hour.
 func (s *Store) VotesPerHour(ctx context.Context, projectID int64, since time.Time) ([]HourCount, error) {
 	since = since.UTC().Truncate(time.Hour)
-	rows, err := s.pool.Query(ctx, `
-		WITH `+countedUntil+`
-		SELECT hour, sum(n) FROM (
-			SELECT h.hour, h.votes::bigint AS n FROM project_vote_hours h WHERE h.project_id = $1 AND h.hour >= $2
-			UNION ALL
-			SELECT date_trunc('hour', v.created_at, 'UTC'), count(*) FROM votes v, counted c
-			WHERE v.project_id = $1 AND v.created_at >= greatest($2, c.until)
-			GROUP BY 1
-			UNION ALL
-			SELECT date_trunc('hour', v.created_at, 'UTC'), count(*) FROM votes v, counted c
-			WHERE v.project_id = $1 AND v.created_at >= $2 AND v.created_at < least(c.kept, c.until)
-			GROUP BY 1
-		) x GROUP BY hour ORDER BY hour`, projectID, since)
+	var out []HourCount
+	err := s.readCounted(ctx, projectID, func(tx pgx.Tx, until, kept time.Time) error {
+		rows, err := tx.Query(ctx, `
+			SELECT hour, sum(n) FROM (
+				SELECT hour, votes::bigint AS n FROM project_vote_hours WHERE project_id = $1 AND hour >= $2
+				UNION ALL
+				SELECT date_trunc('hour', created_at, 'UTC'), count(*) FROM votes
+				WHERE project_id = $1 AND created_at >= greatest($2, $3)
+				GROUP BY 1
+				UNION ALL
+				SELECT date_trunc('hour', created_at, 'UTC'), count(*) FROM votes
+				WHERE project_id = $1 AND created_at >= $2 AND created_at < $4
+				GROUP BY 1
+			) x GROUP BY hour ORDER BY hour`, projectID, since, until, kept)
+		if err != nil {
+			return err
+		}
+		var h HourCount
+		_, err = pgx.ForEachRow(rows, []any{&h.Hour, &h.Votes}, func() error {
+			out = append(out, HourCount{Hour: h.Hour.UTC(), Votes: h.Votes})
+			return nil
+		})
+		return err
+	})
 	if err != nil {
 		return nil, fmt.Errorf("votes per hour of project %d: %w", projectID, err)
 	}
-	defer rows.Close()
-	var out []HourCount
-	for rows.Next() {
-		var h HourCount
-		if err := rows.Scan(&h.Hour, &h.Votes); err != nil {
-			return nil, fmt.Errorf("votes per hour of project %d: %w", projectID, err)
-		}
-		h.Hour = h.Hour.UTC()
-		out = append(out, h)
-	}
-	return out, rows.Err()
+	return out, nil
 }
 
 // ActiveLabellers counts the labellers who voted in the project since each
@@ -138,17 +145,18 @@ func (s *Store) ActiveLabellers(ctx context.Context, projectID int64, recent, ea
 	if recent.Before(earlier) {
 		recent, earlier = earlier, recent
 	}
-	err = s.pool.QueryRow(ctx, `
-		WITH `+countedUntil+`
-		SELECT count(*) FILTER (WHERE last >= $2), count(*) FROM (
-			SELECT labeller_id, max(at) AS last FROM (
-				SELECT user_id AS labeller_id, last_vote_at AS at FROM labeller_stats
-				WHERE project_id = $1 AND last_vote_at >= $3
-				UNION ALL
-				SELECT v.labeller_id, v.created_at FROM votes v, counted c
-				WHERE v.project_id = $1 AND v.created_at >= greatest($3, c.until)
-			) x GROUP BY labeller_id
-		) y`, projectID, recent, earlier).Scan(&sinceRecent, &sinceEarlier)
+	err = s.readCounted(ctx, projectID, func(tx pgx.Tx, until, _ time.Time) error {
+		return tx.QueryRow(ctx, `
+			SELECT count(*) FILTER (WHERE last >= $2), count(*) FROM (
+				SELECT labeller_id, max(at) AS last FROM (
+					SELECT user_id AS labeller_id, last_vote_at AS at FROM labeller_stats
+					WHERE project_id = $1 AND last_vote_at >= $3
+					UNION ALL
+					SELECT labeller_id, created_at FROM votes
+					WHERE project_id = $1 AND created_at >= greatest($3, $4)
+				) x GROUP BY labeller_id
+			) y`, projectID, recent, earlier, until).Scan(&sinceRecent, &sinceEarlier)
+	})
 	if err != nil {
 		return 0, 0, fmt.Errorf("active labellers of project %d: %w", projectID, err)
 	}

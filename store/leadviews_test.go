@@ -207,3 +207,119 @@ func TestLeadLabelAndGold(t *testing.T) {
 		}
 	}
 }
+
+// TestVoteCountsPlusVotesSince: with a count saved, the progress and cost
+// figures are the count's figures plus the votes created since its Until;
+// votes before Until are not read again. The count here deliberately
+// disagrees with the votes table before Until, so a full scan would show.
+func TestVoteCountsPlusVotesSince(t *testing.T) {
+	f := newFixture(t)
+	ctx := context.Background()
+	ids := f.leadItems(t, 4)
+	ana, ben := f.labellers[0].ID, f.labellers[1].ID
+	until := time.Date(2025, 3, 4, 10, 20, 0, 0, time.UTC)
+	// Before until: in the votes table, but the count below stands for them.
+	f.vote(t, ids[0], ana, "glass", 4, until.Add(-2*time.Hour))
+	// Further back than the count keeps hours for: counted per labeller,
+	// but VotesPerHour must read it from the votes table.
+	f.vote(t, ids[1], ben, "glass", 5, until.Add(-10*24*time.Hour))
+	// Since until: read from the votes table.
+	f.vote(t, ids[2], ana, "", 2, until.Add(5*time.Minute))
+	f.vote(t, ids[3], ben, "pet-bottle", 7, until.Add(50*time.Minute))
+
+	if err := f.s.SaveProjectSummary(ctx, f.project.ID, 2, store.ProjectSummary{FittedAt: until}); err != nil {
+		t.Fatal(err)
+	}
+	count := store.VoteCounts{Until: until,
+		Labellers: []store.LabellerCount{
+			{UserID: ana, Votes: 40, CantTell: 4, Seconds: 200, LastVote: until.Add(-2 * time.Hour)},
+			{UserID: ben, Votes: 10, Seconds: 55, LastVote: until.Add(-30 * time.Hour)},
+			// Votes only the count knows of: a full scan would miss them.
+			{UserID: f.lead.ID, Votes: 3, Seconds: 9, LastVote: until.Add(-90 * time.Minute)},
+		},
+		Hours: []store.HourCount{
+			{Hour: time.Date(2025, 3, 4, 8, 0, 0, 0, time.UTC), Votes: 30},
+			{Hour: time.Date(2025, 3, 4, 10, 0, 0, 0, time.UTC), Votes: 6},
+		},
+	}
+	if err := f.s.SaveVoteCounts(ctx, f.project.ID, count); err != nil {
+		t.Fatal(err)
+	}
+	if got := store.VoteHoursFrom(until); !got.Equal(time.Date(2025, 2, 25, 11, 0, 0, 0, time.UTC)) {
+		t.Errorf("hours kept from %v, want 167 hours before 10:00 on 4 March", got)
+	}
+
+	work, err := f.s.WorkByLabeller(ctx, f.project.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var got []string
+	for _, w := range work {
+		got = append(got, fmt.Sprintf("%s %d votes, %d labelled, %g s", w.User.Login, w.Votes, w.Labelled, w.Seconds))
+	}
+	want := []string{
+		fmt.Sprintf("%s 41 votes, 36 labelled, 202 s", f.labellers[0].Login), // 40 counted + 1 can't tell since
+		fmt.Sprintf("%s 11 votes, 11 labelled, 62 s", f.labellers[1].Login),  // 10 counted + 1 since
+		fmt.Sprintf("%s 3 votes, 3 labelled, 9 s", f.lead.Login),             // counted only
+	}
+	if d := cmp.Diff(want, got); d != "" {
+		t.Errorf("work by labeller (-want +got):\n%s", d)
+	}
+
+	hours, err := f.s.VotesPerHour(ctx, f.project.ID, until.Add(-12*24*time.Hour))
+	if err != nil {
+		t.Fatal(err)
+	}
+	wantHours := []store.HourCount{
+		{Hour: time.Date(2025, 2, 22, 10, 0, 0, 0, time.UTC), Votes: 1}, // before the kept hours: from the votes
+		{Hour: time.Date(2025, 3, 4, 8, 0, 0, 0, time.UTC), Votes: 30},  // counted
+		{Hour: time.Date(2025, 3, 4, 10, 0, 0, 0, time.UTC), Votes: 7},  // 6 counted + 1 since
+		{Hour: time.Date(2025, 3, 4, 11, 0, 0, 0, time.UTC), Votes: 1},  // since
+	}
+	if d := cmp.Diff(wantHours, hours); d != "" {
+		t.Errorf("votes per hour since 12 days back (-want +got):\n%s", d)
+	}
+	hours, err = f.s.VotesPerHour(ctx, f.project.ID, time.Date(2025, 3, 4, 9, 30, 0, 0, time.UTC))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if d := cmp.Diff(wantHours[2:], hours); d != "" {
+		t.Errorf("votes per hour from 9:30, whole hours from 9:00 (-want +got):\n%s", d)
+	}
+
+	now := until.Add(55 * time.Minute)
+	cases := []struct {
+		name           string
+		recent         time.Time
+		earlier        time.Time
+		wantRecent, wa int
+	}{
+		{"last hour and today", now.Add(-time.Hour), now.Truncate(24 * time.Hour), 2, 3},
+		{"last 30 minutes and last 3 hours", now.Add(-30 * time.Minute), now.Add(-3 * time.Hour), 1, 3},
+		{"last 3 hours and last 2 days", now.Add(-3 * time.Hour), now.Add(-48 * time.Hour), 3, 3},
+		{"last 2 hours and last 2 hours 30", now.Add(-2 * time.Hour), now.Add(-150 * time.Minute), 2, 3},
+	}
+	for _, tc := range cases {
+		t.Run(tc.name, func(t *testing.T) {
+			r, e, err := f.s.ActiveLabellers(ctx, f.project.ID, tc.recent, tc.earlier)
+			if err != nil || r != tc.wantRecent || e != tc.wa {
+				t.Errorf("active = %d, %d, %v; want %d, %d", r, e, err, tc.wantRecent, tc.wa)
+			}
+		})
+	}
+
+	// A later count without ben and the lead (their votes gone) must not
+	// leave their old totals beside its Until.
+	count.Labellers = count.Labellers[:1]
+	count.Until = until.Add(time.Hour)
+	if err := f.s.SaveVoteCounts(ctx, f.project.ID, count); err != nil {
+		t.Fatal(err)
+	}
+	work, err = f.s.WorkByLabeller(ctx, f.project.ID)
+	if err != nil || len(work) != 1 || work[0].User.ID != ana || work[0].Votes != 40 {
+		t.Errorf("after a count without ben: %+v, %v; want ana's 40 counted votes only", work, err)
+	}
+	if _, today, err := f.s.ActiveLabellers(ctx, f.project.ID, now, now.Add(-48*time.Hour)); err != nil || today != 1 {
+		t.Errorf("active in the last 2 days after the later count: %d, %v; want ana only, as the count says", today, err)
+	}
+}

@@ -5,7 +5,6 @@ import (
 	"encoding/json"
 	"errors"
 	"fmt"
-	"strconv"
 	"time"
 
 	"github.com/jackc/pgx/v5"
@@ -189,10 +188,23 @@ func (s *Store) SaveVoteCounts(ctx context.Context, projectID int64, c VoteCount
 	return nil
 }
 
-// countedUntil is a CTE naming the project's ($1) last count: until is
-// -infinity before the first, so "votes since until" is every vote, and
-// kept is the first hour whose votes per hour the count keeps.
-var countedUntil = `counted AS (
-		SELECT coalesce(max(counted_until), '-infinity') AS until,
-			coalesce(date_trunc('hour', max(counted_until), 'UTC') - make_interval(hours => ` + strconv.Itoa(VoteHoursKept-1) + `), '-infinity') AS kept
-		FROM project_stats WHERE project_id = $1)`
+// readCounted runs fn in one read-only snapshot with the project's last
+// count: until (the zero time before the first count, so "votes since
+// until" is every vote) and kept, the first hour whose votes per hour it
+// keeps. The snapshot keeps the count's figures and its until together
+// when a refit saves a new count meanwhile. The times reach the queries as
+// parameters, so the planner sizes the "votes since" scan as the short
+// range it is.
+func (s *Store) readCounted(ctx context.Context, projectID int64, fn func(tx pgx.Tx, until, kept time.Time) error) error {
+	return pgx.BeginTxFunc(ctx, s.pool, pgx.TxOptions{IsoLevel: pgx.RepeatableRead, AccessMode: pgx.ReadOnly}, func(tx pgx.Tx) error {
+		var until *time.Time
+		err := tx.QueryRow(ctx, `SELECT counted_until FROM project_stats WHERE project_id = $1`, projectID).Scan(&until)
+		if err != nil && !errors.Is(err, pgx.ErrNoRows) {
+			return err
+		}
+		if until == nil {
+			return fn(tx, time.Time{}, time.Time{})
+		}
+		return fn(tx, *until, VoteHoursFrom(*until))
+	})
+}
