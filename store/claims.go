@@ -81,17 +81,21 @@ ON CONFLICT (item_id, labeller_id) DO UPDATE
 	SET claimed_at = excluded.claimed_at, expires_at = excluded.expires_at
 RETURNING item_id, expires_at, (SELECT how FROM chosen)`
 
-// claimCheckSQL counts the item's live claims with a fresh snapshot. Under
-// READ COMMITTED the claim statement's snapshot is taken before it locks
-// the item row, so a claim committed by another labeller in between is
-// invisible to it; this second look, made while the row lock is still held,
-// sees every claim that could compete for the same slot. It also returns
-// the labeller's tally since $3, saving a round trip on every vote.
+// claimCheckSQL reads the item claimed by claimSQL in this transaction
+// (the claims row this transaction wrote) and counts its live claims with
+// a fresh snapshot. Under READ COMMITTED the claim statement's snapshot is
+// taken before it locks the item row, so a claim committed by another
+// labeller in between is invisible to it; this second look, made while the
+// row lock is still held, sees every claim that could compete for the same
+// slot. It cannot be folded into claimSQL: every part of one statement
+// shares that statement's snapshot. It travels in the same round trip as
+// the claim and also returns the labeller's tally since $3.
 const claimCheckSQL = `SELECT ` + itemColumns + `,
 	votes_needed, (SELECT count(*) FROM claims c WHERE c.item_id = items.id AND c.expires_at > now()),
 	(SELECT count(*) FROM votes v WHERE v.labeller_id = $2 AND v.created_at >= $3 AND v.project_id = items.project_id),
 	(SELECT coalesce(sum(seconds), 0) FROM votes v WHERE v.labeller_id = $2 AND v.created_at >= $3 AND v.project_id = items.project_id)
-	FROM items WHERE id = $1`
+	FROM items WHERE id = (SELECT item_id FROM claims
+		WHERE labeller_id = $2 AND project_id = $1 AND xmin = pg_current_xact_id()::xid)`
 
 // maxClaimRetries bounds the retries after losing a last slot to a race.
 const maxClaimRetries = 8
@@ -103,7 +107,7 @@ func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) 
 	var c Claim
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		var err error
-		c, err = claimInTx(ctx, tx, req)
+		c, err = claimInTx(ctx, tx, req, nil)
 		return err
 	})
 	if err != nil {
@@ -114,8 +118,9 @@ func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) 
 
 // claimInTx claims within tx, whose commit releases the item row lock. A
 // claim that lost the last slot to a race is taken back and the next item
-// tried.
-func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest) (Claim, error) {
+// tried. before, when not nil, queues statements to run ahead of the first
+// claim in the same round trip.
+func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest, before func(b *pgx.Batch)) (Claim, error) {
 	exclude := slices.Clone(req.Exclude)
 	if exclude == nil {
 		exclude = []int64{}
@@ -132,19 +137,24 @@ func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest) (Claim, error) 
 		var c Claim
 		var itemID int64
 		var how string
-		err := tx.QueryRow(ctx, claimSQL, req.ProjectID, req.LabellerID, exclude, req.Gold,
-			req.GoldSeed, secs).Scan(&itemID, &c.ExpiresAt, &how)
-		if err != nil {
+		var needed, live int
+		var b pgx.Batch
+		if before != nil {
+			before(&b)
+			before = nil
+		}
+		b.Queue(claimSQL, req.ProjectID, req.LabellerID, exclude, req.Gold, req.GoldSeed, secs).QueryRow(func(row pgx.Row) error {
+			return row.Scan(&itemID, &c.ExpiresAt, &how)
+		})
+		b.Queue(claimCheckSQL, req.ProjectID, req.LabellerID, since).QueryRow(func(row pgx.Row) error {
+			var err error
+			c.Item, err = scanItem(withExtra{Row: row, extra: []any{&needed, &live, &c.Tally.Votes, &c.Tally.Seconds}})
+			return err
+		})
+		if err := tx.SendBatch(ctx, &b).Close(); err != nil {
 			return Claim{}, err
 		}
 		c.Resumed = how == "resume"
-		var needed, live int
-		it, err := scanItem(withExtra{tx.QueryRow(ctx, claimCheckSQL, itemID, req.LabellerID, since),
-			[]any{&needed, &live, &c.Tally.Votes, &c.Tally.Seconds}})
-		if err != nil {
-			return Claim{}, err
-		}
-		c.Item = it
 		if how != "open" || live <= needed {
 			return c, nil
 		}
@@ -156,14 +166,17 @@ func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest) (Claim, error) 
 	return Claim{}, ErrNotFound
 }
 
-// withExtra is a row whose trailing columns go to extra, so scanItem can
-// read an item followed by more columns.
+// withExtra is a row whose leading columns go to lead and trailing columns
+// to extra, so scanItem or scanProject can read a row with more columns.
 type withExtra struct {
 	pgx.Row
 	extra []any
+	lead  []any
 }
 
-func (r withExtra) Scan(dest ...any) error { return r.Row.Scan(append(dest, r.extra...)...) }
+func (r withExtra) Scan(dest ...any) error {
+	return r.Row.Scan(append(append(slices.Clip(r.lead), dest...), r.extra...)...)
+}
 
 // ReleaseClaim gives a claimed item back (the labeller skipped it).
 // Releasing a claim the labeller does not hold is not an error.

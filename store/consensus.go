@@ -82,17 +82,16 @@ func itemVotes(ctx context.Context, q querier, projectID, itemID int64) (ItemVot
 	return iv, nil
 }
 
-// applyItemUpdate writes an item's status, vote count change and
-// consensus in one statement.
-func applyItemUpdate(ctx context.Context, q querier, projectID, itemID int64, u ItemUpdate, delta int) error {
+// itemUpdateSQL is the statement that writes an item's status, vote count
+// change and consensus, so a caller can run it or queue it in a batch.
+func itemUpdateSQL(projectID, itemID int64, u ItemUpdate, delta int) (string, []any) {
 	if u.Consensus == nil {
-		_, err := q.Exec(ctx, `
+		return `
 			WITH u AS (UPDATE items SET status = $2, votes_needed = $3, priority = $4, vote_count = vote_count + $5 WHERE id = $1)
-			DELETE FROM consensus WHERE item_id = $1`, itemID, u.Status, u.VotesNeeded, u.Priority, delta)
-		return err
+			DELETE FROM consensus WHERE item_id = $1`, []any{itemID, u.Status, u.VotesNeeded, u.Priority, delta}
 	}
 	c := u.Consensus
-	_, err := q.Exec(ctx, `
+	return `
 		WITH u AS (UPDATE items SET status = $12, votes_needed = $13, priority = $14, vote_count = vote_count + $15 WHERE id = $1)
 		INSERT INTO consensus (item_id, project_id, label_id, confidence, method, vote_count, tied,
 			rollup_label_id, rollup_confidence, posterior_labels, posterior, updated_at)
@@ -101,8 +100,15 @@ func applyItemUpdate(ctx context.Context, q querier, projectID, itemID int64, u 
 			method = excluded.method, vote_count = excluded.vote_count, tied = excluded.tied,
 			rollup_label_id = excluded.rollup_label_id, rollup_confidence = excluded.rollup_confidence,
 			posterior_labels = excluded.posterior_labels, posterior = excluded.posterior, updated_at = now()`,
-		itemID, projectID, c.LabelID, c.Confidence, c.Method, c.VoteCount, c.Tied, c.RollupLabelID,
-		c.RollupConfidence, nonNil(c.PosteriorLabels), nonNilF(c.Posterior), u.Status, u.VotesNeeded, u.Priority, delta)
+		[]any{itemID, projectID, c.LabelID, c.Confidence, c.Method, c.VoteCount, c.Tied, c.RollupLabelID,
+			c.RollupConfidence, nonNil(c.PosteriorLabels), nonNilF(c.Posterior), u.Status, u.VotesNeeded, u.Priority, delta}
+}
+
+// applyItemUpdate writes an item's status, vote count change and
+// consensus in one statement.
+func applyItemUpdate(ctx context.Context, q querier, projectID, itemID int64, u ItemUpdate, delta int) error {
+	sql, args := itemUpdateSQL(projectID, itemID, u, delta)
+	_, err := q.Exec(ctx, sql, args...)
 	return err
 }
 

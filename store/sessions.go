@@ -2,8 +2,11 @@ package store
 
 import (
 	"context"
+	"errors"
 	"fmt"
 	"time"
+
+	"github.com/jackc/pgx/v5"
 )
 
 // CreateSession stores a session for a user; idHash is the SHA-256 of the
@@ -16,17 +19,65 @@ func (s *Store) CreateSession(ctx context.Context, idHash []byte, userID int64, 
 	return nil
 }
 
+var sessionUserSQL = `
+	SELECT ` + prefixed("u", userColumns) + `
+	FROM sessions s JOIN users u ON u.id = s.user_id
+	WHERE s.id_hash = $1 AND s.expires_at > now() AND u.status = 'active'`
+
 // SessionUser returns the user of a live session; ErrNotFound when the
 // session does not exist, has expired, or its user is blocked.
 func (s *Store) SessionUser(ctx context.Context, idHash []byte) (User, error) {
-	u, err := scanUser(s.pool.QueryRow(ctx, `
-		SELECT `+prefixed("u", userColumns)+`
-		FROM sessions s JOIN users u ON u.id = s.user_id
-		WHERE s.id_hash = $1 AND s.expires_at > now() AND u.status = 'active'`, idHash))
+	u, err := scanUser(s.pool.QueryRow(ctx, sessionUserSQL, idHash))
 	if err != nil {
 		return User{}, fmt.Errorf("session: %w", mapErr(err))
 	}
 	return u, nil
+}
+
+// ProjectAccess is what a project's page or API call needs to know about
+// its caller.
+type ProjectAccess struct {
+	User User
+	// Project is nil when no project has the slug.
+	Project *Project
+	// Member is nil when the user is not a member of the project.
+	Member *Member
+}
+
+// SessionProjectAccess returns the user of a live session, the project
+// with the slug and the user's membership of it, in one statement when
+// the project exists (a labeller's every vote starts here). ErrNotFound
+// when the session is not live, as SessionUser.
+func (s *Store) SessionProjectAccess(ctx context.Context, idHash []byte, slug string) (ProjectAccess, error) {
+	var a ProjectAccess
+	var memberStatus, memberReason *string
+	var joined *time.Time
+	u := &a.User
+	p, err := scanProject(withExtra{
+		Row: s.pool.QueryRow(ctx, `
+			SELECT `+prefixed("u", userColumns)+`, `+prefixed("p", projectColumns)+`,
+				m.status, m.status_reason, m.joined_at
+			FROM sessions s
+			JOIN users u ON u.id = s.user_id
+			JOIN projects p ON p.slug = $2
+			LEFT JOIN project_members m ON m.project_id = p.id AND m.user_id = u.id
+			WHERE s.id_hash = $1 AND s.expires_at > now() AND u.status = 'active'`, idHash, slug),
+		lead:  []any{&u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt},
+		extra: []any{&memberStatus, &memberReason, &joined},
+	})
+	if errors.Is(err, pgx.ErrNoRows) {
+		// No such project, or no live session: SessionUser tells which.
+		a.User, err = s.SessionUser(ctx, idHash)
+		return a, err
+	}
+	if err != nil {
+		return ProjectAccess{}, fmt.Errorf("session access to project %q: %w", slug, err)
+	}
+	a.Project = &p
+	if memberStatus != nil {
+		a.Member = &Member{ProjectID: p.ID, User: a.User, Status: *memberStatus, StatusReason: *memberReason, JoinedAt: *joined}
+	}
+	return a, nil
 }
 
 // DeleteSession ends a session (logout). Deleting a missing session is not an error.

@@ -55,24 +55,39 @@ func (s *Store) RecordVote(ctx context.Context, v NewVote, decide Decider) (Vote
 // ClaimNext(next) when next is not nil: one commit per vote. A repeated vote
 // id claims in a transaction of its own. The claim is nil when nothing is
 // left for the labeller.
+//
+// The transaction takes four round trips to the database: BEGIN with the
+// vote, the item's votes (read after the vote locked the item, so a vote
+// committed meanwhile is counted), the item's new state with the claim and
+// its check, and COMMIT.
 func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decider, next *ClaimRequest) (VoteResult, *Claim, error) {
 	var res VoteResult
 	var claim *Claim
-	err := s.inTx(ctx, func(tx pgx.Tx) error {
+	var row voteRow
+	err := s.inTxBegun(ctx, func(b *pgx.Batch) { row.queue(b, v) }, func(tx pgx.Tx) error {
 		var err error
-		if res, err = recordVoteTx(ctx, tx, v, decide); err != nil || next == nil {
+		claim = nil
+		res, err = row.result()
+		if err != nil {
 			return err
+		}
+		write, err := finishVote(ctx, tx, v, decide, &res)
+		if err != nil {
+			return err
+		}
+		if next == nil {
+			return tx.SendBatch(ctx, write).Close()
 		}
 		// The claim comes last: its FOR UPDATE holds the claimed row to
 		// the commit, and labellers voting on that item wait for it.
 		// (Claiming first measured slower; a separate transaction costs a
 		// second commit.)
-		return claimOrNone(ctx, tx, *next, &claim)
+		return claimOrNone(ctx, tx, *next, write, &claim)
 	})
 	if errors.Is(err, errNotInserted) {
 		res, err = s.repeatedVote(ctx, v)
 		if err == nil && next != nil {
-			err = s.inTx(ctx, func(tx pgx.Tx) error { return claimOrNone(ctx, tx, *next, &claim) })
+			err = s.inTx(ctx, func(tx pgx.Tx) error { return claimOrNone(ctx, tx, *next, nil, &claim) })
 		}
 	}
 	if err != nil {
@@ -84,8 +99,14 @@ func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decide
 	return res, claim, nil
 }
 
-func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, out **Claim) error {
-	c, err := claimInTx(ctx, tx, req)
+// claimOrNone claims the next item after running the statements in
+// before (nil: none), in the same round trip as the claim.
+func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, before *pgx.Batch, out **Claim) error {
+	var queue func(b *pgx.Batch)
+	if before != nil {
+		queue = func(b *pgx.Batch) { b.QueuedQueries = append(b.QueuedQueries, before.QueuedQueries...) }
+	}
+	c, err := claimInTx(ctx, tx, req, queue)
 	if errors.Is(err, ErrNotFound) || errors.Is(err, pgx.ErrNoRows) {
 		return nil
 	}
@@ -121,29 +142,47 @@ WITH lbl AS (
 SELECT EXISTS (SELECT 1 FROM ins), (SELECT label_id FROM ins),
 	$7::text IS NULL OR EXISTS (SELECT 1 FROM lbl), (SELECT count(*) FROM lock)`
 
-func recordVoteTx(ctx context.Context, tx pgx.Tx, v NewVote, decide Decider) (VoteResult, error) {
-	var res VoteResult
-	var inserted, labelKnown bool
-	var label *int64
-	err := tx.QueryRow(ctx, voteSQL, v.ID, v.ProjectID, v.ItemID, v.LabellerID, v.LabelID, v.Seconds, v.LabelKey).
-		Scan(&inserted, &label, &labelKnown, new(int))
-	if err != nil {
-		return res, err
+// voteRow is voteSQL's answer.
+type voteRow struct {
+	inserted, labelKnown bool
+	label                *int64
+}
+
+func (r *voteRow) queue(b *pgx.Batch, v NewVote) {
+	b.Queue(voteSQL, v.ID, v.ProjectID, v.ItemID, v.LabellerID, v.LabelID, v.Seconds, v.LabelKey).QueryRow(func(row pgx.Row) error {
+		*r = voteRow{}
+		return row.Scan(&r.inserted, &r.label, &r.labelKnown, new(int))
+	})
+}
+
+func (r *voteRow) result() (VoteResult, error) {
+	if !r.labelKnown {
+		return VoteResult{}, ErrUnknownLabel
 	}
-	if !labelKnown {
-		return res, ErrUnknownLabel
+	if !r.inserted {
+		return VoteResult{}, errNotInserted
 	}
-	if !inserted {
-		return res, errNotInserted
-	}
-	res.VotedLabel = label
-	if label == nil {
+	return VoteResult{VotedLabel: r.label}, nil
+}
+
+// finishVote reads what the stored vote changes and returns, unsent, the
+// statements that write it, so they can share a round trip with the claim.
+func finishVote(ctx context.Context, tx pgx.Tx, v NewVote, decide Decider, res *VoteResult) (*pgx.Batch, error) {
+	var b pgx.Batch
+	if res.VotedLabel == nil {
 		// "Can't tell" changes no count and no consensus, but the gold
 		// answer still decides the feedback.
-		err := tx.QueryRow(ctx, `SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).Scan(&res.GoldLabel)
-		return res, err
+		b.Queue(`SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).QueryRow(func(row pgx.Row) error {
+			return row.Scan(&res.GoldLabel)
+		})
+		return &b, nil
 	}
-	return res, updateItem(ctx, tx, v.ProjectID, v.ItemID, decide, &res.GoldLabel, 1)
+	sql, args, err := itemWrite(ctx, tx, v.ProjectID, v.ItemID, decide, &res.GoldLabel, 1)
+	if err != nil {
+		return nil, err
+	}
+	b.Queue(sql, args...)
+	return &b, nil
 }
 
 // repeatedVote answers a vote that was not inserted: a retry of a stored
@@ -171,20 +210,59 @@ var errNotInserted = errors.New("vote not inserted")
 // updateItem changes the item's vote count by delta and recomputes its
 // state through decide, unless it is a gold item, whose answer is fixed.
 func updateItem(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide Decider, gold **int64, delta int) error {
-	iv, err := itemVotes(ctx, tx, projectID, itemID)
+	sql, args, err := itemWrite(ctx, tx, projectID, itemID, decide, gold, delta)
 	if err != nil {
 		return err
+	}
+	_, err = tx.Exec(ctx, sql, args...)
+	return err
+}
+
+// itemWrite reads the item's votes, decides its new state and returns the
+// statement that writes it.
+func itemWrite(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide Decider, gold **int64, delta int) (string, []any, error) {
+	iv, err := itemVotes(ctx, tx, projectID, itemID)
+	if err != nil {
+		return "", nil, err
 	}
 	*gold = iv.GoldLabel
 	if iv.GoldLabel != nil || decide == nil {
-		_, err := tx.Exec(ctx, `UPDATE items SET vote_count = vote_count + $2 WHERE id = $1`, itemID, delta)
-		return err
+		return `UPDATE items SET vote_count = vote_count + $2 WHERE id = $1`, []any{itemID, delta}, nil
 	}
 	u, err := decide(ctx, iv)
 	if err != nil {
+		return "", nil, err
+	}
+	sql, args := itemUpdateSQL(projectID, itemID, u, delta)
+	return sql, args, nil
+}
+
+// inTxBegun is inTx with BEGIN sent in one round trip with the statements
+// start queues; fn runs once their answers are in.
+func (s *Store) inTxBegun(ctx context.Context, start func(b *pgx.Batch), fn func(tx pgx.Tx) error) error {
+	var err error
+	for range txAttempts {
+		if err = s.tryTxBegun(ctx, start, fn); !retryable(err) {
+			return err
+		}
+	}
+	return err
+}
+
+func (s *Store) tryTxBegun(ctx context.Context, start func(b *pgx.Batch), fn func(tx pgx.Tx) error) error {
+	var b pgx.Batch
+	b.BeginTx(pgx.TxOptions{})
+	start(&b)
+	br := s.pool.SendBatch(ctx, &b)
+	tx := br.Tx()
+	defer tx.Rollback(context.Background())
+	if err := br.Close(); err != nil {
 		return err
 	}
-	return applyItemUpdate(ctx, tx, projectID, itemID, u, delta)
+	if err := fn(tx); err != nil {
+		return err
+	}
+	return tx.Commit(ctx)
 }
 
 // UndoLastVote deletes the labeller's latest vote in the project if it is

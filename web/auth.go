@@ -6,6 +6,7 @@ import (
 	"crypto/sha256"
 	"encoding/base64"
 	"errors"
+	"fmt"
 	"net"
 	"net/http"
 	"net/url"
@@ -32,6 +33,8 @@ type ctxKey int
 const (
 	userKey ctxKey = iota
 	projectKey
+	accessKey
+	memberKey
 )
 
 // userFrom returns the logged-in user, or nil.
@@ -59,20 +62,44 @@ func tokenHash(token string) []byte {
 	return h[:]
 }
 
-// loadUser puts the session's user, if any, into the request context.
+// memberFrom returns the user's membership of the project loaded by
+// requireProject; nil for leads and non-members.
+func memberFrom(ctx context.Context) *store.Member {
+	m, _ := ctx.Value(memberKey).(*store.Member)
+	return m
+}
+
+// loadUser puts the session's user, if any, into the request context. On
+// a route whose path names a project, the project and the membership come
+// with the user in one round trip, for requireProject to check.
 func (s *Server) loadUser(next http.Handler) http.Handler {
 	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
 		c, err := r.Cookie(sessionCookie)
 		if err == nil && c.Value != "" {
-			u, err := s.store.SessionUser(r.Context(), tokenHash(c.Value))
+			ctx := r.Context()
+			var u store.User
+			if slug := chi.URLParam(r, "project"); slug != "" {
+				var a store.ProjectAccess
+				a, err = s.store.SessionProjectAccess(ctx, tokenHash(c.Value), slug)
+				u = a.User
+				ctx = context.WithValue(ctx, accessKey, &preloaded{slug: slug, access: a})
+			} else {
+				u, err = s.store.SessionUser(ctx, tokenHash(c.Value))
+			}
 			if err == nil {
-				r = r.WithContext(context.WithValue(r.Context(), userKey, &u))
+				r = r.WithContext(context.WithValue(ctx, userKey, &u))
 			} else if !errors.Is(err, store.ErrNotFound) {
 				s.log.Error("load session", "err", err)
 			}
 		}
 		next.ServeHTTP(w, r)
 	})
+}
+
+// preloaded is the project access loadUser read with the session.
+type preloaded struct {
+	slug   string
+	access store.ProjectAccess
 }
 
 // requireLogin sends anonymous page requests to the login page and answers
@@ -107,19 +134,53 @@ func (s *Server) requireLead(next http.Handler) http.Handler {
 // project answers 404 so its existence does not leak.
 func (s *Server) requireProject(next http.Handler) http.Handler {
 	return s.handle(func(w http.ResponseWriter, r *http.Request) error {
-		u := userFrom(r.Context())
-		p, err := s.store.ProjectBySlug(r.Context(), chi.URLParam(r, "project"))
-		if err != nil {
-			return err
-		}
-		if u.Role != store.RoleLead {
-			if _, err := s.store.MemberOf(r.Context(), p.ID, u.ID); err != nil {
-				return err // ErrNotFound -> 404
+		ctx := r.Context()
+		u := userFrom(ctx)
+		slug := chi.URLParam(r, "project")
+		a, ok := ctx.Value(accessKey).(*preloaded)
+		if !ok || a.slug != slug {
+			var err error
+			if a, err = s.loadAccess(ctx, u, slug); err != nil {
+				return err
 			}
 		}
-		next.ServeHTTP(w, r.WithContext(context.WithValue(r.Context(), projectKey, &p)))
+		p, m := a.access.Project, a.access.Member
+		if p == nil || (u.Role != store.RoleLead && m == nil) {
+			return fmt.Errorf("project %q for user %d: %w", slug, u.ID, store.ErrNotFound)
+		}
+		ctx = context.WithValue(ctx, projectKey, p)
+		if m != nil {
+			ctx = context.WithValue(ctx, memberKey, m)
+		}
+		next.ServeHTTP(w, r.WithContext(ctx))
 		return nil
 	})
+}
+
+// loadAccess reads a project and the user's membership of it when
+// loadUser could not (the route's {project} lies under a sub-router).
+func (s *Server) loadAccess(ctx context.Context, u *store.User, slug string) (*preloaded, error) {
+	a := &preloaded{slug: slug, access: store.ProjectAccess{User: *u}}
+	p, err := s.store.ProjectBySlug(ctx, slug)
+	if errors.Is(err, store.ErrNotFound) {
+		return a, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	a.access.Project = &p
+	if u.Role == store.RoleLead {
+		return a, nil
+	}
+	m, err := s.store.MemberOf(ctx, p.ID, u.ID)
+	if errors.Is(err, store.ErrNotFound) {
+		return a, nil
+	}
+	if err != nil {
+		return nil, err
+	}
+	a.access.Member = &m
+	return a, nil
 }
 
 func (s *Server) setSessionCookie(w http.ResponseWriter, r *http.Request, token string, expires time.Time) {

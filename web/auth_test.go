@@ -1,10 +1,19 @@
 package web
 
 import (
+	"context"
+	"encoding/json"
 	"net/http"
+	"net/http/httptest"
 	"net/url"
 	"strings"
+	"sync/atomic"
 	"testing"
+	"time"
+
+	"github.com/go-chi/chi/v5"
+	"github.com/jackc/pgx/v5"
+	"github.com/jackc/pgx/v5/pgxpool"
 
 	"github.com/concord-labs/concord/store"
 )
@@ -136,4 +145,113 @@ func mustURL(s string) *url.URL {
 		panic(err)
 	}
 	return u
+}
+
+// roundTrips counts the statements and batches sent to the database; a
+// batch is one round trip however many statements it holds.
+type roundTrips struct{ n atomic.Int64 }
+
+func (c *roundTrips) TraceQueryStart(ctx context.Context, _ *pgx.Conn, _ pgx.TraceQueryStartData) context.Context {
+	c.n.Add(1)
+	return ctx
+}
+func (c *roundTrips) TraceQueryEnd(context.Context, *pgx.Conn, pgx.TraceQueryEndData) {}
+func (c *roundTrips) TraceBatchStart(ctx context.Context, _ *pgx.Conn, _ pgx.TraceBatchStartData) context.Context {
+	c.n.Add(1)
+	return ctx
+}
+func (c *roundTrips) TraceBatchQuery(context.Context, *pgx.Conn, pgx.TraceBatchQueryData) {}
+func (c *roundTrips) TraceBatchEnd(context.Context, *pgx.Conn, pgx.TraceBatchEndData)     {}
+
+// TestProjectAuthOneRoundTrip checks that a labeller's API call learns its
+// session, project and membership in one round trip to the database, and
+// that the answers stay those of the separate reads: 404 for a project the
+// labeller is not a member of or that does not exist, a lead let in
+// everywhere.
+func TestProjectAuthOneRoundTrip(t *testing.T) {
+	ctx := context.Background()
+	cfg, err := pgxpool.ParseConfig(testDB.URL)
+	if err != nil {
+		t.Fatal(err)
+	}
+	trips := &roundTrips{}
+	cfg.ConnConfig.Tracer = trips
+	pool, err := pgxpool.NewWithConfig(ctx, cfg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(pool.Close)
+	e := newTestEnv(t)
+	srv := New(store.New(pool), nil, Config{DataDir: t.TempDir()})
+	mine, theirs := e.project(), e.project()
+	labeller, lead := e.member(mine), e.user(store.RoleLead)
+	// The same nesting as routes.go: the session is read in a group, the
+	// project in a sub-router.
+	var tripsAtHandler int64
+	r := chi.NewRouter()
+	r.Group(func(r chi.Router) {
+		r.Use(srv.loadUser, srv.requireLogin)
+		r.Route("/api/p/{project}", func(r chi.Router) {
+			r.Use(srv.requireProject)
+			r.Post("/probe", func(w http.ResponseWriter, r *http.Request) {
+				tripsAtHandler = trips.n.Load()
+				writeJSON(w, http.StatusOK, map[string]any{"project": projectFrom(r.Context()).Slug,
+					"member": memberFrom(r.Context()) != nil})
+			})
+		})
+	})
+	cookie := func(u store.User) string {
+		token, hash := newToken()
+		if err := e.store.CreateSession(ctx, hash, u.ID, time.Now().Add(time.Hour)); err != nil {
+			t.Fatal(err)
+		}
+		return sessionCookie + "=" + token
+	}
+	cases := []struct {
+		name       string
+		user       store.User
+		slug       string
+		wantStatus int
+		wantMember bool
+		wantTrips  int64
+	}{
+		{"member", labeller, mine.Slug, http.StatusOK, true, 1},
+		{"not a member", labeller, theirs.Slug, http.StatusNotFound, false, 1},
+		// A missing project takes a second look to tell it from a dead session.
+		{"no such project", labeller, "no-such-project", http.StatusNotFound, false, 2},
+		{"lead", lead, theirs.Slug, http.StatusOK, false, 1},
+	}
+	for _, c := range cases {
+		t.Run(c.name, func(t *testing.T) {
+			req := httptest.NewRequest("POST", "/api/p/"+c.slug+"/probe", nil)
+			req.Header.Set("Accept", "application/json")
+			req.Header.Set("Cookie", cookie(c.user))
+			w := httptest.NewRecorder()
+			tripsAtHandler = -1
+			before := trips.n.Load()
+			r.ServeHTTP(w, req)
+			if w.Code != c.wantStatus {
+				t.Fatalf("status %d, want %d: %s", w.Code, c.wantStatus, w.Body)
+			}
+			if got := trips.n.Load() - before; got != c.wantTrips {
+				t.Errorf("%d round trips, want %d", got, c.wantTrips)
+			}
+			if c.wantStatus != http.StatusOK {
+				return
+			}
+			if tripsAtHandler-before != 1 {
+				t.Errorf("%d round trips before the handler, want 1", tripsAtHandler-before)
+			}
+			var got struct {
+				Project string
+				Member  bool
+			}
+			if err := json.Unmarshal(w.Body.Bytes(), &got); err != nil {
+				t.Fatal(err)
+			}
+			if got.Project != c.slug || got.Member != c.wantMember {
+				t.Errorf("handler saw project %q member %v, want %q %v", got.Project, got.Member, c.slug, c.wantMember)
+			}
+		})
+	}
 }

@@ -43,20 +43,24 @@ func BenchmarkVoteAndClaim(b *testing.B) {
 	b.Run("paced-1s", func(b *testing.B) { benchVoteAndClaim(b, time.Second) })
 }
 
-func benchVoteAndClaim(b *testing.B, pace time.Duration) {
+// voteBench is the benchmark's project with its labellers, each holding
+// a claimed item, after a warm-up and a refit.
+type voteBench struct {
+	store   *store.Store
+	srv     *Server
+	project store.Project
+	cookies []string
+	current []*itemJSON
+	call    func(cookie, path, body string) (labelResponseJSON, int)
+	vote    func(i int, item int64) (*itemJSON, time.Duration, error)
+}
+
+// newVoteBench builds the benchmark project on st.
+func newVoteBench(b testing.TB, st *store.Store) *voteBench {
 	ctx := context.Background()
-	sep := "?"
-	if strings.Contains(testDB.URL, "?") {
-		sep = "&"
-	}
-	s, err := store.Open(ctx, testDB.URL+sep+"pool_max_conns=40")
-	if err != nil {
-		b.Fatal(err)
-	}
-	defer s.Close()
-	srv := New(s, nil, Config{DataDir: b.TempDir()})
+	srv := New(st, nil, Config{DataDir: b.TempDir()})
 	h := srv.Handler()
-	p, err := s.CreateProjectWithTaxonomy(ctx, store.Project{Slug: uniq("bench"), Name: "Bench line"}, []store.LabelInput{
+	p, err := st.CreateProjectWithTaxonomy(ctx, store.Project{Slug: uniq("bench"), Name: "Bench line"}, []store.LabelInput{
 		{Key: "plastic", Parent: -1},
 		{Key: "pet-bottle", Name: "PET bottle", Parent: 0},
 		{Key: "plastic-film", Name: "Plastic film", Parent: 0},
@@ -74,29 +78,29 @@ func benchVoteAndClaim(b *testing.B, pace time.Duration) {
 		sum := sha256.Sum256(fmt.Appendf(nil, "bench %s %d", p.Slug, i))
 		items[i] = store.NewItem{SHA256: sum, FileKey: hex.EncodeToString(sum[:]), MediaType: "image/png", Bytes: 1000, Width: 640, Height: 480}
 	}
-	if _, err := s.InsertItems(ctx, p.ID, items); err != nil {
+	if _, err := st.InsertItems(ctx, p.ID, items); err != nil {
 		b.Fatal(err)
 	}
-	if _, err := s.Pool().Exec(ctx, `UPDATE items SET votes_needed = 3 WHERE project_id = $1`, p.ID); err != nil {
+	if _, err := st.Pool().Exec(ctx, `UPDATE items SET votes_needed = 3 WHERE project_id = $1`, p.ID); err != nil {
 		b.Fatal(err)
 	}
 	leaves := []string{"pet-bottle", "plastic-film", "aluminium-can", "glass", "cardboard", "residual"}
-	cookies := make([]string, benchLabellers)
-	for i := range cookies {
-		u, err := s.CreateUser(ctx, store.User{Login: uniq("bench-labeller"), DisplayName: "b", Role: store.RoleLabeller})
+	vb := &voteBench{store: st, srv: srv, project: p, cookies: make([]string, benchLabellers)}
+	for i := range vb.cookies {
+		u, err := st.CreateUser(ctx, store.User{Login: uniq("bench-labeller"), DisplayName: "b", Role: store.RoleLabeller})
 		if err != nil {
 			b.Fatal(err)
 		}
-		if err := s.AddMember(ctx, p.ID, u.ID); err != nil {
+		if err := st.AddMember(ctx, p.ID, u.ID); err != nil {
 			b.Fatal(err)
 		}
 		token, hash := newToken()
-		if err := s.CreateSession(ctx, hash, u.ID, time.Now().Add(time.Hour)); err != nil {
+		if err := st.CreateSession(ctx, hash, u.ID, time.Now().Add(time.Hour)); err != nil {
 			b.Fatal(err)
 		}
-		cookies[i] = sessionCookie + "=" + token
+		vb.cookies[i] = sessionCookie + "=" + token
 	}
-	call := func(cookie, path, body string) (labelResponseJSON, int) {
+	vb.call = func(cookie, path, body string) (labelResponseJSON, int) {
 		req := httptest.NewRequest("POST", "http://concord.test"+path, strings.NewReader(body))
 		req.Header.Set("Content-Type", "application/json")
 		req.Header.Set("Accept", "application/json")
@@ -110,40 +114,56 @@ func benchVoteAndClaim(b *testing.B, pace time.Duration) {
 	}
 	var seq atomic.Int64
 	// vote has labeller i vote on item and returns the next item.
-	vote := func(i int, item int64) (*itemJSON, time.Duration, error) {
+	vb.vote = func(i int, item int64) (*itemJSON, time.Duration, error) {
 		n := seq.Add(1)
 		body := fmt.Sprintf(`{"id":"%08x-0000-4000-8000-%012x","item":%d,"label":"%s","seconds":3.2,"exclude":[]}`,
 			p.ID, n, item, leaves[(int(item)*7+i)%len(leaves)])
 		start := time.Now()
-		out, code := call(cookies[i], "/api/p/"+p.Slug+"/votes", body)
+		out, code := vb.call(vb.cookies[i], "/api/p/"+p.Slug+"/votes", body)
 		d := time.Since(start)
 		if code != http.StatusOK {
 			return nil, d, fmt.Errorf("vote: %d %s", code, out.Error)
 		}
 		return out.Next, d, nil
 	}
-	current := make([]*itemJSON, benchLabellers)
-	for i := range current {
-		out, code := call(cookies[i], "/api/p/"+p.Slug+"/next", `{}`)
+	vb.current = make([]*itemJSON, benchLabellers)
+	for i := range vb.current {
+		out, code := vb.call(vb.cookies[i], "/api/p/"+p.Slug+"/next", `{}`)
 		if code != http.StatusOK || out.Next == nil {
 			b.Fatalf("first claim: %d %s", code, out.Error)
 		}
-		current[i] = out.Next
+		vb.current[i] = out.Next
 	}
 	// Warm up with a few votes each, then fit, so the timed votes use the
 	// Dawid-Skene path.
-	for i := range current {
+	for i := range vb.current {
 		for range 5 {
-			next, _, err := vote(i, current[i].ID)
+			next, _, err := vb.vote(i, vb.current[i].ID)
 			if err != nil {
 				b.Fatal(err)
 			}
-			current[i] = next
+			vb.current[i] = next
 		}
 	}
 	if err := srv.RefitProject(ctx, p.ID); err != nil {
 		b.Fatal(err)
 	}
+	return vb
+}
+
+func benchVoteAndClaim(b *testing.B, pace time.Duration) {
+	ctx := context.Background()
+	sep := "?"
+	if strings.Contains(testDB.URL, "?") {
+		sep = "&"
+	}
+	s, err := store.Open(ctx, testDB.URL+sep+"pool_max_conns=40")
+	if err != nil {
+		b.Fatal(err)
+	}
+	defer s.Close()
+	vb := newVoteBench(b, s)
+	current, vote := vb.current, vb.vote
 
 	lat := make([][]time.Duration, benchLabellers)
 	var wg sync.WaitGroup

@@ -55,9 +55,13 @@ func (s *Server) checkCanLabel(r *http.Request, p *store.Project) error {
 	if u.Role == store.RoleLead {
 		return nil
 	}
-	m, err := s.store.MemberOf(r.Context(), p.ID, u.ID)
-	if err != nil {
-		return err
+	m := memberFrom(r.Context())
+	if m == nil || m.ProjectID != p.ID {
+		mm, err := s.store.MemberOf(r.Context(), p.ID, u.ID)
+		if err != nil {
+			return err
+		}
+		m = &mm
 	}
 	switch m.Status {
 	case store.StatusActive:
