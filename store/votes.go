@@ -237,34 +237,6 @@ func itemWrite(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide D
 	return sql, args, nil
 }
 
-// inTxBegun is inTx with BEGIN sent in one round trip with the statements
-// start queues; fn runs once their answers are in.
-func (s *Store) inTxBegun(ctx context.Context, start func(b *pgx.Batch), fn func(tx pgx.Tx) error) error {
-	var err error
-	for range txAttempts {
-		if err = s.tryTxBegun(ctx, start, fn); !retryable(err) {
-			return err
-		}
-	}
-	return err
-}
-
-func (s *Store) tryTxBegun(ctx context.Context, start func(b *pgx.Batch), fn func(tx pgx.Tx) error) error {
-	var b pgx.Batch
-	b.BeginTx(pgx.TxOptions{})
-	start(&b)
-	br := s.pool.SendBatch(ctx, &b)
-	tx := br.Tx()
-	defer tx.Rollback(context.Background())
-	if err := br.Close(); err != nil {
-		return err
-	}
-	if err := fn(tx); err != nil {
-		return err
-	}
-	return tx.Commit(ctx)
-}
-
 // UndoLastVote deletes the labeller's latest vote in the project if it is
 // younger than window, restores the item's count and consensus, and claims
 // the item for the labeller again. It returns the item; ErrNotFound when
