@@ -175,7 +175,9 @@
       tally(j.tally);
       var before = queue.length;
       add(j.next);
-      if (queue.length > before) return fill();
+      // An answer to a request sent before a skip or vote may offer an item
+      // already dealt with; add drops it, so ask again with the new list.
+      if (queue.length > before || (j.next && seen[j.next.id])) return fill();
       if (!queue.length) show();
     }, function (e) { busy = false; fail(e); });
   }
