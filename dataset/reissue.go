@@ -4,6 +4,7 @@ import (
 	"context"
 	"crypto/sha256"
 	"encoding/hex"
+	"encoding/json"
 	"fmt"
 	"slices"
 	"strconv"
@@ -44,10 +45,10 @@ func RecordedParams(rec store.Release) (ReleaseParams, error) {
 // Load rebuilds a recorded release from its own record, not from the
 // project as it is now: the rows of release_items (split, label, confidence,
 // votes, group), the items' SHA-256 and media type, the recorded
-// parameters, and the taxonomy snapshot in the recorded card for label
-// paths. New votes, new items or a reshaped taxonomy therefore do not
-// change it. The manifest is checked against the recorded checksum; a
-// mismatch is a *RecordMismatchError.
+// parameters, the recorded taxonomy snapshot for label paths and the
+// recorded release.json. New votes, new items or a reshaped taxonomy
+// therefore do not change it. The manifest is checked against the recorded
+// checksum; a mismatch is a *RecordMismatchError.
 func (r *Releaser) Load(ctx context.Context, projectID int64, name string) (*Release, store.Release, error) {
 	rec, err := r.Store.ReleaseByName(ctx, projectID, name)
 	if err != nil {
@@ -79,13 +80,14 @@ func (r *Releaser) Load(ctx context.Context, projectID int64, name string) (*Rel
 
 // Reissue rebuilds a recorded release from its record (see Load); current
 // is the project's taxonomy today, used only for labels the recorded
-// card's snapshot does not name.
+// snapshot does not name.
 //
-// manifest.jsonl and manifest.csv are byte-identical to the first issue,
-// and so is CARD.md (it is the recorded text). release.json is rebuilt
-// from the record alone, so it lacks the vote policy, agreement figures
-// and cost, which only the card recorded; it says so in its "reissued"
-// field.
+// A release recorded with its snapshot (migration 0005 on) comes back
+// byte-identical in every file, SHA256SUMS included: release.json is the
+// recorded text. An older release takes its taxonomy from the recorded
+// card and rebuilds release.json from the record alone, which lacks the
+// vote policy, agreement figures and cost that only the card recorded; it
+// says so in its "reissued" field.
 func Reissue(rec store.Release, items []store.ReleasedItem, current []TaxNode) (*Release, error) {
 	p, err := RecordedParams(rec)
 	if err != nil {
@@ -98,11 +100,16 @@ func Reissue(rec store.Release, items []store.ReleasedItem, current []TaxNode) (
 		return nil, mismatch("%d item rows, but %d recorded", len(items), rec.ItemCount)
 	}
 	project, snapshot := parseCard(rec.Card)
+	if len(rec.Taxonomy) > 0 {
+		if snapshot, err = unmarshalTaxonomy(rec.Taxonomy); err != nil {
+			return nil, mismatch("recorded taxonomy: %v", err)
+		}
+	}
 	paths := labelPaths(current)
 	for k, v := range labelPaths(snapshot) {
 		paths[k] = v
 	}
-	rel := &Release{Params: p, Rows: make([]Row, len(items)), Counts: Counts{}, Files: map[string][]byte{}}
+	rel := &Release{Params: p, Rows: make([]Row, len(items)), Counts: Counts{}, Files: map[string][]byte{}, Taxonomy: snapshot}
 	for i, it := range items {
 		sp, err := ParseSplitName(it.Split)
 		if err != nil {
@@ -155,11 +162,12 @@ func Reissue(rec store.Release, items []store.ReleasedItem, current []TaxNode) (
 		rel.Files[ManifestCSV] = renderCSV(rel.Rows)
 	}
 	in := ReleaseInput{Params: p, Project: project, Taxonomy: taxonomy}
-	rj, err := renderReleaseJSON(in, rel, reissuedNote)
-	if err != nil {
-		return nil, err
+	rel.Files[ReleaseJSON] = rec.ReleaseJSON
+	if rec.ReleaseJSON == nil {
+		if rel.Files[ReleaseJSON], err = renderReleaseJSON(in, rel, reissuedNote); err != nil {
+			return nil, err
+		}
 	}
-	rel.Files[ReleaseJSON] = rj
 	rel.Files[CardFile] = []byte(rec.Card)
 	if rec.Card == "" {
 		rel.Files[CardFile] = renderCard(in, rel)
@@ -170,6 +178,64 @@ func Reissue(rec store.Release, items []store.ReleasedItem, current []TaxNode) (
 
 const reissuedNote = "Rebuilt from the recorded release; manifests and CARD.md are as first issued. " +
 	"Vote policy, agreement and cost were recorded only in CARD.md."
+
+// snapshotLabel is one label in the taxonomy package's JSON form, the form
+// releases.taxonomy holds.
+type snapshotLabel struct {
+	Key      string          `json:"key"`
+	Name     string          `json:"name"`
+	Children []snapshotLabel `json:"children,omitempty"`
+}
+
+// marshalTaxonomy writes a pre-order taxonomy in the taxonomy package's
+// JSON form; parents, depths and order survive, ids (which a reshaped
+// taxonomy renumbers) do not.
+func marshalTaxonomy(nodes []TaxNode) ([]byte, error) {
+	var build func(parent int64, from int) ([]snapshotLabel, int)
+	build = func(parent int64, from int) ([]snapshotLabel, int) {
+		out := []snapshotLabel{}
+		i := from
+		for i < len(nodes) && nodes[i].ParentID == parent {
+			l := snapshotLabel{Key: nodes[i].Key, Name: nodes[i].Name}
+			var kids []snapshotLabel
+			kids, i = build(nodes[i].ID, i+1)
+			if len(kids) > 0 {
+				l.Children = kids
+			}
+			out = append(out, l)
+		}
+		return out, i
+	}
+	roots, n := build(0, 0)
+	if n != len(nodes) {
+		return nil, fmt.Errorf("taxonomy snapshot: label %q is not in pre-order after its parent", nodes[n].Key)
+	}
+	b, err := json.Marshal(roots)
+	if err != nil {
+		return nil, fmt.Errorf("taxonomy snapshot: %w", err)
+	}
+	return b, nil
+}
+
+// unmarshalTaxonomy reads marshalTaxonomy's form back into pre-order
+// nodes, numbered from 1.
+func unmarshalTaxonomy(data []byte) ([]TaxNode, error) {
+	var roots []snapshotLabel
+	if err := json.Unmarshal(data, &roots); err != nil {
+		return nil, err
+	}
+	var nodes []TaxNode
+	var walk func(ls []snapshotLabel, parent int64, depth int)
+	walk = func(ls []snapshotLabel, parent int64, depth int) {
+		for _, l := range ls {
+			n := TaxNode{ID: int64(len(nodes) + 1), ParentID: parent, Key: l.Key, Name: l.Name, Depth: depth, IsLeaf: len(l.Children) == 0}
+			nodes = append(nodes, n)
+			walk(l.Children, n.ID, depth+1)
+		}
+	}
+	walk(roots, 0, 0)
+	return nodes, nil
+}
 
 // labelPaths maps each key of a taxonomy in pre-order to its key path.
 func labelPaths(nodes []TaxNode) map[string]string {

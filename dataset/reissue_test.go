@@ -20,8 +20,9 @@ import (
 
 // TestLoadRecordedRelease: a release is rebuilt from its record after the
 // project moved on (labels flipped by new consensus, new items, a reshaped
-// taxonomy), with its manifests and card byte-identical; an altered record
-// is caught by the checksum.
+// taxonomy), with every file byte-identical, release.json and SHA256SUMS
+// included; a release recorded before the snapshot columns falls back to
+// its card; an altered record is caught by the checksum.
 func TestLoadRecordedRelease(t *testing.T) {
 	ctx := context.Background()
 	f := newReleaseFixture(t)
@@ -32,8 +33,7 @@ func TestLoadRecordedRelease(t *testing.T) {
 		t.Fatal(err)
 	}
 
-	// Unchanged project: the reissue equals the first issue file for file,
-	// but for release.json, which is rebuilt from the record.
+	// Unchanged project: the reissue equals the first issue file for file.
 	again, _, err := r.Load(ctx, f.p.ID, "v1")
 	if err != nil {
 		t.Fatal(err)
@@ -97,9 +97,13 @@ func TestLoadRecordedRelease(t *testing.T) {
 		t.Fatal(err)
 	}
 	// The snapshot is the taxonomy as it was: pet-bottle under plastic.
-	if doc.Items != 30 || doc.Project != "Sorting line" || doc.Reissued == "" || len(doc.Taxonomy) != 6 ||
+	// release.json is the one first issued, so it says nothing of a reissue.
+	if doc.Items != 30 || doc.Project != "Sorting line" || doc.Reissued != "" || len(doc.Taxonomy) != 6 ||
 		doc.Taxonomy[1].Key != "pet-bottle" || doc.Taxonomy[1].Parent != "plastic" {
 		t.Errorf("release.json = %+v", doc)
+	}
+	if p := later.Rows[0].LabelPath; p != first.Rows[0].LabelPath {
+		t.Errorf("row 0 label path %q, first issued %q", p, first.Rows[0].LabelPath)
 	}
 	// Folders and SHA256SUMS hold as written to disk.
 	out := filepath.Join(t.TempDir(), "v1")
@@ -110,7 +114,7 @@ func TestLoadRecordedRelease(t *testing.T) {
 
 	// An altered row (the immutability trigger switched off, as only a
 	// superuser could) is caught, and so is a removed one.
-	tamper := func(sql string) {
+	tamper := func(sql string, args ...any) {
 		t.Helper()
 		tx, err := f.s.Pool().Begin(ctx)
 		if err != nil {
@@ -120,7 +124,7 @@ func TestLoadRecordedRelease(t *testing.T) {
 		if _, err := tx.Exec(ctx, `SET LOCAL session_replication_role = replica`); err != nil {
 			t.Fatal(err)
 		}
-		if _, err := tx.Exec(ctx, sql, rec.ID, first.Rows[3].Item); err != nil {
+		if _, err := tx.Exec(ctx, sql, args...); err != nil {
 			t.Fatal(err)
 		}
 		if err := tx.Commit(ctx); err != nil {
@@ -131,12 +135,36 @@ func TestLoadRecordedRelease(t *testing.T) {
 	if first.Rows[3].Split == dataset.Train {
 		other = "test"
 	}
-	tamper(`UPDATE release_items SET split = '` + other + `' WHERE release_id = $1 AND item_id = $2`)
+
+	// A release recorded before migration 0005 has no snapshot: its
+	// taxonomy comes from the card and release.json is rebuilt, saying so.
+	tamper(`UPDATE releases SET release_json = NULL, taxonomy = NULL WHERE id = $1`, rec.ID)
+	old, oldRec, err := r.Load(ctx, f.p.ID, "v1")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if oldRec.ReleaseJSON != nil || oldRec.Taxonomy != nil {
+		t.Errorf("NULL snapshot read back as %q, %q", oldRec.ReleaseJSON, oldRec.Taxonomy)
+	}
+	for _, name := range []string{dataset.ManifestJSONL, dataset.ManifestCSV, dataset.CardFile} {
+		if !bytes.Equal(first.Files[name], old.Files[name]) {
+			t.Errorf("without a snapshot, %s differs from the first issue", name)
+		}
+	}
+	doc.Reissued = ""
+	if err := json.Unmarshal(old.Files[dataset.ReleaseJSON], &doc); err != nil {
+		t.Fatal(err)
+	}
+	if doc.Reissued == "" || len(doc.Taxonomy) != 6 || doc.Taxonomy[1].Key != "pet-bottle" || doc.Taxonomy[1].Parent != "plastic" {
+		t.Errorf("release.json without a snapshot = %+v", doc)
+	}
+
+	tamper(`UPDATE release_items SET split = '`+other+`' WHERE release_id = $1 AND item_id = $2`, rec.ID, first.Rows[3].Item)
 	var mm *dataset.RecordMismatchError
 	if _, _, err := r.Load(ctx, f.p.ID, "v1"); !errors.As(err, &mm) {
 		t.Errorf("split altered: Load error %v, want a RecordMismatchError", err)
 	}
-	tamper(`DELETE FROM release_items WHERE release_id = $1 AND item_id = $2`)
+	tamper(`DELETE FROM release_items WHERE release_id = $1 AND item_id = $2`, rec.ID, first.Rows[3].Item)
 	if _, _, err := r.Load(ctx, f.p.ID, "v1"); !errors.As(err, &mm) {
 		t.Errorf("row removed: Load error %v, want a RecordMismatchError", err)
 	}
@@ -145,10 +173,13 @@ func TestLoadRecordedRelease(t *testing.T) {
 	}
 }
 
-// sameFiles: the manifests and the card of b are those of a.
+// sameFiles: every file of b is that of a, byte for byte.
 func sameFiles(t *testing.T, a, b *dataset.Release) {
 	t.Helper()
-	for _, name := range []string{dataset.ManifestJSONL, dataset.ManifestCSV, dataset.CardFile} {
+	if len(a.Files) != len(b.Files) {
+		t.Errorf("%d files, first issue %d", len(b.Files), len(a.Files))
+	}
+	for _, name := range []string{dataset.ManifestJSONL, dataset.ManifestCSV, dataset.ReleaseJSON, dataset.CardFile, dataset.SumsFile} {
 		if len(a.Files[name]) == 0 || !bytes.Equal(a.Files[name], b.Files[name]) {
 			t.Errorf("%s differs from the first issue (%d vs %d bytes)", name, len(a.Files[name]), len(b.Files[name]))
 		}

@@ -119,7 +119,8 @@ type Release struct {
 	Params         ReleaseParams
 	Rows           []Row
 	Counts         Counts
-	Labels         []string // labels that occur, in taxonomy order
+	Labels         []string  // labels that occur, in taxonomy order
+	Taxonomy       []TaxNode // the taxonomy the release was cut with, recorded with it
 	Files          map[string][]byte
 	ManifestSHA256 [32]byte // of manifest.jsonl, recorded in the database
 }
@@ -179,6 +180,7 @@ func BuildRelease(in ReleaseInput) (*Release, error) {
 			rel.Labels = append(rel.Labels, n.Key)
 		}
 	}
+	rel.Taxonomy = in.Taxonomy
 	jsonl := renderJSONL(rel.Rows)
 	rel.ManifestSHA256 = sha256.Sum256(jsonl)
 	if p.has(FormatJSONL) {

@@ -111,8 +111,14 @@ func (r *Releaser) Create(ctx context.Context, projectID int64, p ReleaseParams,
 }
 
 // Record writes a computed release and its items to the database in one
-// transaction. The name must be new for the project.
+// transaction, with release.json as issued and the taxonomy it was cut
+// with, so that Load rebuilds every file byte for byte. The name must be
+// new for the project.
 func (r *Releaser) Record(ctx context.Context, projectID int64, p ReleaseParams, rel *Release, createdBy *int64) (store.Release, error) {
+	tax, err := marshalTaxonomy(rel.Taxonomy)
+	if err != nil {
+		return store.Release{}, fmt.Errorf("record release %q: %w", p.Name, err)
+	}
 	items := make([]store.ReleaseItem, len(rel.Rows))
 	for i, row := range rel.Rows {
 		items[i] = store.ReleaseItem{ItemID: row.Item, Split: row.Split.String(), LabelKey: row.Label,
@@ -125,5 +131,5 @@ func (r *Releaser) Record(ctx context.Context, projectID int64, p ReleaseParams,
 	return r.Store.CreateRelease(ctx, store.Release{ProjectID: projectID, Name: p.Name, Seed: p.Seed,
 		SplitTrain: p.Split[0], SplitVal: p.Split[1], SplitTest: p.Split[2], MinConfidence: p.MinConfidence,
 		Level: level, Formats: strings.Join(p.Formats, ","), ManifestSHA256: rel.ManifestSHA256,
-		Card: string(rel.Files[CardFile]), CreatedBy: createdBy}, items)
+		Card: string(rel.Files[CardFile]), ReleaseJSON: rel.Files[ReleaseJSON], Taxonomy: tax, CreatedBy: createdBy}, items)
 }

@@ -79,8 +79,13 @@ type Release struct {
 	ItemCount      int
 	ManifestSHA256 [32]byte
 	Card           string
-	CreatedBy      *int64
-	CreatedAt      time.Time
+	// ReleaseJSON is release.json as first issued and Taxonomy the
+	// taxonomy it was cut with (the taxonomy package's JSON form); both are
+	// nil for releases recorded before migration 0005.
+	ReleaseJSON []byte
+	Taxonomy    json.RawMessage
+	CreatedBy   *int64
+	CreatedAt   time.Time
 }
 
 // ReleaseItem is one item's place in a release.
@@ -94,13 +99,13 @@ type ReleaseItem struct {
 }
 
 const releaseColumns = `id, project_id, name, seed, split_train, split_val, split_test, min_confidence, level,
-	formats, item_count, manifest_sha256, card, created_by, created_at`
+	formats, item_count, manifest_sha256, card, release_json, taxonomy, created_by, created_at`
 
 func scanRelease(row pgx.Row) (Release, error) {
 	var r Release
 	var sha []byte
 	err := row.Scan(&r.ID, &r.ProjectID, &r.Name, &r.Seed, &r.SplitTrain, &r.SplitVal, &r.SplitTest, &r.MinConfidence,
-		&r.Level, &r.Formats, &r.ItemCount, &sha, &r.Card, &r.CreatedBy, &r.CreatedAt)
+		&r.Level, &r.Formats, &r.ItemCount, &sha, &r.Card, &r.ReleaseJSON, &r.Taxonomy, &r.CreatedBy, &r.CreatedAt)
 	if err == nil {
 		r.ManifestSHA256 = [32]byte(sha)
 	}
@@ -121,11 +126,11 @@ func (s *Store) CreateRelease(ctx context.Context, r Release, items []ReleaseIte
 		var err error
 		out, err = scanRelease(tx.QueryRow(ctx, `
 			INSERT INTO releases (project_id, name, seed, split_train, split_val, split_test, min_confidence, level,
-				formats, item_count, manifest_sha256, card, created_by)
-			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13)
+				formats, item_count, manifest_sha256, card, release_json, taxonomy, created_by)
+			VALUES ($1, $2, $3, $4, $5, $6, $7, $8, $9, $10, $11, $12, $13, $14, $15)
 			RETURNING `+releaseColumns,
 			r.ProjectID, r.Name, r.Seed, r.SplitTrain, r.SplitVal, r.SplitTest, r.MinConfidence, r.Level,
-			r.Formats, len(items), r.ManifestSHA256[:], r.Card, r.CreatedBy))
+			r.Formats, len(items), r.ManifestSHA256[:], r.Card, nullText(r.ReleaseJSON), nullJSON(r.Taxonomy), r.CreatedBy))
 		if err != nil {
 			return err
 		}
@@ -164,7 +169,26 @@ func (s *Store) CreateRelease(ctx context.Context, r Release, items []ReleaseIte
 	return out, nil
 }
 
-// Releases lists a project's releases, newest first, without their cards.
+// nullText stores nil as NULL and other bytes as text (pgx would send
+// []byte as bytea).
+func nullText(b []byte) *string {
+	if b == nil {
+		return nil
+	}
+	s := string(b)
+	return &s
+}
+
+// nullJSON stores an empty document as NULL.
+func nullJSON(b json.RawMessage) any {
+	if len(b) == 0 {
+		return nil
+	}
+	return string(b)
+}
+
+// Releases lists a project's releases, newest first, without their cards
+// and snapshots.
 func (s *Store) Releases(ctx context.Context, projectID int64) ([]Release, error) {
 	rows, err := s.pool.Query(ctx, `SELECT `+releaseColumns+` FROM releases WHERE project_id = $1 ORDER BY id DESC`, projectID)
 	if err != nil {
@@ -177,7 +201,7 @@ func (s *Store) Releases(ctx context.Context, projectID int64) ([]Release, error
 		if err != nil {
 			return nil, fmt.Errorf("releases of project %d: %w", projectID, err)
 		}
-		r.Card = ""
+		r.Card, r.ReleaseJSON, r.Taxonomy = "", nil, nil
 		out = append(out, r)
 	}
 	return out, rows.Err()

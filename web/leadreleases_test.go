@@ -15,8 +15,8 @@ import (
 )
 
 // TestDownloadRecordedRelease: a release downloaded after the project moved
-// on (labels flipped, items added) has the manifest first issued, whose
-// SHA-256 is the recorded one; an altered record is refused.
+// on (labels flipped, items added) has every file first issued, its
+// manifest with the recorded SHA-256; an altered record is refused.
 func TestDownloadRecordedRelease(t *testing.T) {
 	e := newTestEnv(t)
 	ctx := context.Background()
@@ -57,10 +57,17 @@ func TestDownloadRecordedRelease(t *testing.T) {
 	}
 	consensus("glass")
 	later := downloadedFiles(t, lead.get(base+"/r1/download"))
-	for _, name := range []string{"r1/manifest.jsonl", "r1/manifest.csv", "r1/CARD.md"} {
+	// Every file, release.json and SHA256SUMS included, is as first issued.
+	if len(first) != 5 || len(later) != len(first) {
+		t.Errorf("%d files later, %d first, want 5", len(later), len(first))
+	}
+	for _, name := range []string{"r1/manifest.jsonl", "r1/manifest.csv", "r1/release.json", "r1/CARD.md", "r1/SHA256SUMS"} {
 		if len(first[name]) == 0 || string(later[name]) != string(first[name]) {
 			t.Errorf("%s changed after the project moved on (%d vs %d bytes)", name, len(first[name]), len(later[name]))
 		}
+	}
+	if string(later["r1/release.json"]) != string(rec.ReleaseJSON) || strings.Contains(string(rec.ReleaseJSON), `"reissued"`) {
+		t.Errorf("downloaded release.json is not the recorded one:\n%s", later["r1/release.json"])
 	}
 	if sum := sha256.Sum256(later["r1/manifest.jsonl"]); sum != rec.ManifestSHA256 {
 		t.Errorf("later manifest SHA-256 %x, recorded %x", sum, rec.ManifestSHA256)

@@ -7,6 +7,7 @@ import (
 	"crypto/sha256"
 	"errors"
 	"fmt"
+	"io/fs"
 	"os"
 	"path/filepath"
 	"strings"
@@ -127,12 +128,18 @@ func TestReleaseCommand(t *testing.T) {
 		!strings.Contains(r.stdout, "images: 16 hard-linked, 0 copied") {
 		t.Errorf("release --existing output:\n%s", r.stdout)
 	}
-	for _, name := range []string{"manifest.jsonl", "manifest.csv", "CARD.md"} {
-		a, _ := os.ReadFile(filepath.Join(out, name))
-		b, _ := os.ReadFile(filepath.Join(out3, name))
-		if len(a) == 0 || !bytes.Equal(a, b) {
-			t.Errorf("%s written again differs from the first issue", name)
+	// Every file, release.json and SHA256SUMS included, is as first issued.
+	firstFiles, againFiles := treeFiles(t, out), treeFiles(t, out3)
+	if len(firstFiles) != 5+16 || len(againFiles) != len(firstFiles) {
+		t.Errorf("%d files written again, %d first issued, want %d", len(againFiles), len(firstFiles), 5+16)
+	}
+	for name, a := range firstFiles {
+		if b, ok := againFiles[name]; len(a) == 0 || !ok || !bytes.Equal(a, b) {
+			t.Errorf("%s written again differs from the first issue (%d vs %d bytes)", name, len(a), len(b))
 		}
+	}
+	if !bytes.Equal(againFiles["release.json"], rec.ReleaseJSON) || bytes.Contains(rec.ReleaseJSON, []byte(`"reissued"`)) {
+		t.Errorf("release.json written again is not the recorded one:\n%s", againFiles["release.json"])
 	}
 	if got, _ := os.ReadFile(filepath.Join(out3, "manifest.jsonl")); sha256.Sum256(got) != rec.ManifestSHA256 {
 		t.Error("manifest.jsonl written again does not have the recorded SHA-256")
@@ -168,4 +175,25 @@ func TestReleaseCommandUsage(t *testing.T) {
 			t.Errorf("%v: error %v, want a usage error", args, r.err)
 		}
 	}
+}
+
+// treeFiles reads every regular file under dir, by slash path relative to it.
+func treeFiles(t *testing.T, dir string) map[string][]byte {
+	t.Helper()
+	out := map[string][]byte{}
+	err := filepath.WalkDir(dir, func(path string, d fs.DirEntry, err error) error {
+		if err != nil || d.IsDir() {
+			return err
+		}
+		rel, err := filepath.Rel(dir, path)
+		if err != nil {
+			return err
+		}
+		out[filepath.ToSlash(rel)], err = os.ReadFile(path)
+		return err
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	return out
 }

@@ -1,0 +1,3 @@
+ALTER TABLE releases
+    DROP COLUMN taxonomy,
+    DROP COLUMN release_json;
