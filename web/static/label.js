@@ -137,8 +137,12 @@
   }
 
   function say(msg) { statusEl.textContent = msg; }
-  function tally(t) {
-    if (!t) return;
+  // Answers can arrive out of order (a claim sent before an undo may
+  // answer after it); only the latest request's tally is shown.
+  var sent = 0, shownSeq = 0;
+  function tally(t, seq) {
+    if (!t || (seq && seq < shownSeq)) return;
+    if (seq) shownSeq = seq;
     $("lab-votes").textContent = String(t.votes);
     var m = Math.round(t.seconds / 60);
     $("lab-time").textContent = Math.floor(m / 60) + ":" + ("0" + (m % 60)).slice(-2);
@@ -148,6 +152,7 @@
   // times: the server makes retries safe.
   function post(path, body, tries) {
     tries = tries || 3;
+    var seq = ++sent;
     return fetch(api + path, {
       method: "POST", credentials: "same-origin",
       headers: { "Content-Type": "application/json", "Accept": "application/json" },
@@ -155,6 +160,7 @@
     }).then(function (r) {
       return r.json().then(function (j) {
         if (!r.ok) throw { refused: true, msg: j.error || ("Error " + r.status) };
+        j.seq = seq;
         return j;
       });
     }, function (e) {
@@ -172,7 +178,7 @@
     busy = true;
     return post("/next", { exclude: held() }).then(function (j) {
       busy = false;
-      tally(j.tally);
+      tally(j.tally, j.seq);
       var before = queue.length;
       add(j.next);
       // An answer to a request sent before a skip or vote may offer an item
@@ -202,7 +208,7 @@
     show();
     say(key == null ? "Saved: can't tell." : "Saved: " + byKey(key) + ".");
     post("/votes", body).then(function (j) {
-      tally(j.tally);
+      tally(j.tally, j.seq);
       if (j.feedback) {
         say(j.feedback.correct ? "Check item: right, it is " + j.feedback.expected + "." :
           "Check item: the expected label was " + j.feedback.expected + ".");
@@ -228,7 +234,7 @@
 
   function undo() {
     post("/undo", {}).then(function (j) {
-      tally(j.tally);
+      tally(j.tally, j.seq);
       if (!j.item) return;
       delete seen[j.item.id];
       queue = queue.filter(function (q) { return q.id !== j.item.id; });
