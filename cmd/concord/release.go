@@ -16,8 +16,8 @@ const releaseUsage = `release --project SLUG --name NAME --out DIR [--split 80/1
        concord release --project SLUG --name NAME --out DIR --existing
 
 The first form cuts a new release from the project's current consensus and records it.
-With --existing, a release recorded earlier is written again exactly as it was cut (same
-manifests and card, checked against its recorded checksum), however the project changed since;
+With --existing, a release recorded earlier is written again exactly as it was cut (every
+file the same byte for byte, checked against its recorded checksum), however the project changed since;
 it takes its split, seed, level, confidence and formats from the record.`
 
 // cutFlags are the options that choose a new release; --existing takes
