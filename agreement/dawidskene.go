@@ -378,3 +378,27 @@ func (m *dsModel) fill(res *DawidSkeneResult) {
 		}
 	}
 }
+
+// ItemPosterior is the Dawid-Skene E-step for one item with the model held
+// fixed: prior[t] times, for each vote v, confusions[v][t*K+labels[v]],
+// normalised over the K classes. It updates one item between refits from
+// the last fit's priors and confusion matrices (DawidSkeneResult.Prior and
+// ConfusionOf). It returns the posterior and its most probable class (the
+// lowest on a tie). Zero probabilities are floored at 1e-300, so a vote
+// never vetoes a class outright.
+func ItemPosterior(prior []float64, confusions [][]float64, labels []int) ([]float64, int) {
+	k := len(prior)
+	lp := make([]float64, k)
+	for t := range k {
+		lp[t] = math.Log(max(prior[t], 1e-300))
+	}
+	for v, j := range labels {
+		c := confusions[v]
+		for t := range k {
+			lp[t] += math.Log(max(c[t*k+j], 1e-300))
+		}
+	}
+	post := make([]float64, k)
+	normaliseLog(lp, post)
+	return post, argmax(post)
+}

@@ -4,7 +4,6 @@ import (
 	"context"
 	"errors"
 	"fmt"
-	"math"
 	"slices"
 	"strconv"
 	"sync"
@@ -237,33 +236,26 @@ func (s *Server) decider(p *store.Project) store.Decider {
 // matrices held fixed. ok is false when a vote uses a label the fit did not
 // know, and majority vote must do.
 func (m *fitModel) decide(iv store.ItemVotes, pol agreement.VotePolicy) (store.ItemUpdate, bool) {
-	k := m.k
-	logp := make([]float64, k)
-	for t := range k {
-		logp[t] = math.Log(max(m.prior[t], 1e-300))
-	}
+	confs := make([][]float64, len(iv.Labels))
+	labels := make([]int, len(iv.Labels))
 	for i, label := range iv.Labels {
 		j, ok := m.index[label]
 		if !ok {
 			return store.ItemUpdate{}, false
 		}
-		mat := m.matrix[iv.Labellers[i]]
-		if mat == nil {
-			mat = m.avg
-		}
-		for t := range k {
-			logp[t] += math.Log(max(mat[t*k+j], 1e-300))
+		labels[i] = j
+		if confs[i] = m.matrix[iv.Labellers[i]]; confs[i] == nil {
+			confs[i] = m.avg
 		}
 	}
-	post := softmax(logp)
-	c := &agreement.Consensus{NumItems: 1, NumClasses: k, Posterior: post, Votes: []int32{int32(iv.VoteCount)}}
-	best := argmaxF(post)
+	post, best := agreement.ItemPosterior(m.prior, confs, labels)
+	c := &agreement.Consensus{NumItems: 1, NumClasses: m.k, Posterior: post, Votes: []int32{int32(iv.VoteCount)}}
 	c.Label, c.Confidence = []int32{int32(best)}, []float64{post[best]}
 	plans, err := pol.Plan(c, m.avg)
 	if err != nil {
 		return store.ItemUpdate{}, false
 	}
-	row := sparsePosterior(m.classes, post)
+	row := sparsePosterior(m.classes, post, best)
 	row.Method, row.VoteCount = store.MethodDS, iv.VoteCount
 	return planUpdate(plans[0], row), true
 }
@@ -324,8 +316,7 @@ func planUpdate(pl agreement.ItemPlan, row *store.ConsensusRow) store.ItemUpdate
 func priorityOf(pl agreement.ItemPlan) float64 { return pl.Gain + 1e-3*(1-pl.Confidence) }
 
 // sparsePosterior keeps the classes with a posterior worth storing.
-func sparsePosterior(classes []int64, post []float64) *store.ConsensusRow {
-	best := argmaxF(post)
+func sparsePosterior(classes []int64, post []float64, best int) *store.ConsensusRow {
 	row := &store.ConsensusRow{LabelID: &classes[best], Confidence: post[best]}
 	for i, p := range post {
 		if p >= 1e-4 {
@@ -334,33 +325,6 @@ func sparsePosterior(classes []int64, post []float64) *store.ConsensusRow {
 		}
 	}
 	return row
-}
-
-func softmax(logp []float64) []float64 {
-	mx := math.Inf(-1)
-	for _, x := range logp {
-		mx = max(mx, x)
-	}
-	out := make([]float64, len(logp))
-	sum := 0.0
-	for i, x := range logp {
-		out[i] = math.Exp(x - mx)
-		sum += out[i]
-	}
-	for i := range out {
-		out[i] /= sum
-	}
-	return out
-}
-
-func argmaxF(xs []float64) int {
-	best := 0
-	for i, x := range xs {
-		if x > xs[best] {
-			best = i
-		}
-	}
-	return best
 }
 
 // startEngine runs the refit loop until ctx ends and returns a channel

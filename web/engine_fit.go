@@ -179,7 +179,7 @@ func (s *Server) refit(ctx context.Context, projectID int64) error {
 			continue
 		}
 		post := ds.PosteriorOf(i)
-		c := sparsePosterior(f.classes, post)
+		c := sparsePosterior(f.classes, post, int(ds.Label[i]))
 		c.Method, c.VoteCount = store.MethodDS, f.seen[i]
 		if rc, mass := hier.RollUp(post, p.ConfidenceTarget); rc >= 0 {
 			c.RollupLabelID, c.RollupConfidence = &f.classes[rc], &mass
