@@ -62,3 +62,18 @@ func redact(u string) string {
 	}
 	return p.Redacted()
 }
+
+// openProject opens the store and loads the project with this slug; the
+// close function is nil when err is not.
+func openProject(ctx context.Context, e *env, slug string) (*store.Store, store.Project, func(), error) {
+	s, closeDB, err := openStore(ctx, e)
+	if err != nil {
+		return nil, store.Project{}, nil, err
+	}
+	p, err := s.ProjectBySlug(ctx, slug)
+	if err != nil {
+		closeDB()
+		return nil, store.Project{}, nil, err
+	}
+	return s, p, closeDB, nil
+}

@@ -35,15 +35,11 @@ func runImport(ctx context.Context, e *env, args []string) error {
 	if *distance < 1 || *distance > dataset.MaxNearDuplicateDistance {
 		return usagef("import: --near-duplicate-distance %d: want 1 to %d", *distance, dataset.MaxNearDuplicateDistance)
 	}
-	s, closeDB, err := openStore(ctx, e)
+	s, p, closeDB, err := openProject(ctx, e, *slug)
 	if err != nil {
 		return err
 	}
 	defer closeDB()
-	p, err := s.ProjectBySlug(ctx, *slug)
-	if err != nil {
-		return err
-	}
 	blobs, err := blob.NewLocal(*data)
 	if err != nil {
 		return err

@@ -70,15 +70,11 @@ func runRelease(ctx context.Context, e *env, args []string) error {
 	if err := p.Validate(); err != nil {
 		return usagef("release: %v", err)
 	}
-	s, closeDB, err := openStore(ctx, e)
+	s, proj, closeDB, err := openProject(ctx, e, *slug)
 	if err != nil {
 		return err
 	}
 	defer closeDB()
-	proj, err := s.ProjectBySlug(ctx, *slug)
-	if err != nil {
-		return err
-	}
 	p.Seed = proj.ReleaseSeed
 	if *seed != "" {
 		if p.Seed, err = strconv.ParseInt(*seed, 10, 64); err != nil {
@@ -114,15 +110,11 @@ func runRelease(ctx context.Context, e *env, args []string) error {
 
 // writeExisting writes a recorded release again from its record.
 func writeExisting(ctx context.Context, e *env, slug, name, out, data string) error {
-	s, closeDB, err := openStore(ctx, e)
+	s, proj, closeDB, err := openProject(ctx, e, slug)
 	if err != nil {
 		return err
 	}
 	defer closeDB()
-	proj, err := s.ProjectBySlug(ctx, slug)
-	if err != nil {
-		return err
-	}
 	blobs, err := blob.NewLocal(data)
 	if err != nil {
 		return err

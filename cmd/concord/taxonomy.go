@@ -50,15 +50,11 @@ func runTaxonomy(ctx context.Context, e *env, args []string) error {
 		if err != nil {
 			return err
 		}
-		s, closeDB, err := openStore(ctx, e)
+		s, p, closeDB, err := openProject(ctx, e, *project)
 		if err != nil {
 			return err
 		}
 		defer closeDB()
-		p, err := s.ProjectBySlug(ctx, *project)
-		if err != nil {
-			return err
-		}
 		if err := s.ReplaceTaxonomy(ctx, p.ID, store.LabelInputsOf(t)); err != nil {
 			return err
 		}
@@ -68,15 +64,11 @@ func runTaxonomy(ctx context.Context, e *env, args []string) error {
 		if *project == "" {
 			return usagef("taxonomy %s: need --project SLUG", args[0])
 		}
-		s, closeDB, err := openStore(ctx, e)
+		s, p, closeDB, err := openProject(ctx, e, *project)
 		if err != nil {
 			return err
 		}
 		defer closeDB()
-		p, err := s.ProjectBySlug(ctx, *project)
-		if err != nil {
-			return err
-		}
 		t, _, err := s.Taxonomy(ctx, p.ID)
 		if err != nil {
 			return err
