@@ -194,9 +194,9 @@ func (s *Store) writePlanBatch(ctx context.Context, projectID int64, part []Item
 	return int(tag.RowsAffected()), err
 }
 
-// LabellerStats is one labeller's figures from a fit.
-type LabellerStats struct {
-	UserID        int64
+// LabellerFigures are a labeller's reliability figures from a fit, as the
+// engine writes them and the lead pages read them.
+type LabellerFigures struct {
 	Votes         int
 	MedianSeconds *float64
 	Accuracy      *float64
@@ -206,7 +206,13 @@ type LabellerStats struct {
 	GoldHigh      *float64
 	Agreement     *float64
 	Flags         []string
-	Model         *LabellerModel // stored as the confusion JSON
+}
+
+// LabellerStats is one labeller's figures from a fit.
+type LabellerStats struct {
+	UserID int64
+	LabellerFigures
+	Model *LabellerModel // stored as the confusion JSON
 }
 
 // SaveLabellerStats replaces the project's labeller figures in one

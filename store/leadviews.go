@@ -166,20 +166,12 @@ func (s *Store) ActiveLabellers(ctx context.Context, projectID int64, recent, ea
 // LabellerRow is one labeller of a project as the lead sees them: the
 // membership joined with the engine's last figures (nil before any fit).
 type LabellerRow struct {
-	User          User
-	Member        bool   // false for someone with votes who has since left
-	Status        string // membership status; "" when not a member
-	StatusReason  string
-	Votes         int
-	MedianSeconds *float64
-	Accuracy      *float64
-	GoldCorrect   int
-	GoldTotal     int
-	GoldLow       *float64
-	GoldHigh      *float64
-	Agreement     *float64
-	Flags         []string
-	StatsAt       *time.Time
+	User         User
+	Member       bool   // false for someone with votes who has since left
+	Status       string // membership status; "" when not a member
+	StatusReason string
+	LabellerFigures
+	StatsAt *time.Time // nil before any fit
 }
 
 var labellerRowSelect = `

@@ -323,10 +323,10 @@ func (s *Server) saveLabellers(ctx context.Context, f *fitData, ds *agreement.Da
 	}
 	floor := f.project.Policy.AccuracyFloor
 	for i, r := range reports {
-		st := store.LabellerStats{UserID: f.labIDs[r.Labeller], Votes: r.Votes,
+		st := store.LabellerStats{UserID: f.labIDs[r.Labeller], LabellerFigures: store.LabellerFigures{Votes: r.Votes,
 			MedianSeconds: finite(r.MedianSeconds), Accuracy: finite(r.EstimatedAccuracy),
 			GoldCorrect: r.GoldCorrect, GoldTotal: r.GoldVotes, GoldLow: finite(r.GoldLo), GoldHigh: finite(r.GoldHi),
-			Agreement: finite(r.ConsensusAgreement), Flags: []string{}}
+			Agreement: finite(r.ConsensusAgreement), Flags: []string{}}}
 		if r.Flags != 0 {
 			st.Flags = strings.Split(r.Flags.String(), ",")
 		}
