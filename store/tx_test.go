@@ -73,8 +73,11 @@ func TestInTxRetriesDeadlock(t *testing.T) {
 			t.Fatalf("a transaction failed despite the retry: %v", err)
 		}
 	}
-	if got := attempts.Load(); got != 3 {
-		t.Errorf("%d attempts, want 3 (one of the two retried once)", got)
+	// Usually one victim retries once (3 attempts); when both backends'
+	// deadlock checks fire together both retry (4). Either way a retry
+	// must have happened and no more than one per transaction.
+	if got := attempts.Load(); got < 3 || got > 4 {
+		t.Errorf("%d attempts, want 3 or 4 (a deadlock victim retried)", got)
 	}
 	var n1, n2 int
 	if err := s.pool.QueryRow(ctx, `SELECT (SELECT n FROM pair WHERE id = 1), (SELECT n FROM pair WHERE id = 2)`).Scan(&n1, &n2); err != nil {
