@@ -47,7 +47,7 @@ type ConsensusRow struct {
 	ItemID           int64
 	LabelID          *int64
 	Confidence       float64
-	Method           string
+	Method           string // mv, ds, lead or gold
 	VoteCount        int
 	Tied             bool
 	RollupLabelID    *int64

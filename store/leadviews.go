@@ -304,21 +304,13 @@ func (s *Store) queryVotes(ctx context.Context, sql string, args ...any) ([]Vote
 
 // ConsensusView is an item's consensus as the engine (or a lead) set it.
 type ConsensusView struct {
-	LabelID          *int64
-	Confidence       float64
-	Method           string // mv, ds, lead or gold
-	VoteCount        int
-	Tied             bool
-	RollupLabelID    *int64
-	RollupConfidence *float64
-	PosteriorLabels  []int64
-	Posterior        []float64
-	UpdatedAt        time.Time
+	ConsensusRow
+	UpdatedAt time.Time
 }
 
 // ConsensusOf returns an item's consensus; ErrNotFound before it has one.
 func (s *Store) ConsensusOf(ctx context.Context, projectID, itemID int64) (ConsensusView, error) {
-	var c ConsensusView
+	c := ConsensusView{ConsensusRow: ConsensusRow{ItemID: itemID}}
 	err := s.pool.QueryRow(ctx, `
 		SELECT label_id, confidence, method, vote_count, tied, rollup_label_id, rollup_confidence,
 			posterior_labels, posterior, updated_at
