@@ -73,9 +73,9 @@ func TestInTxRetriesDeadlock(t *testing.T) {
 			t.Fatalf("a transaction failed despite the retry: %v", err)
 		}
 	}
-	// Usually one victim retries once (3 attempts); when both backends'
-	// deadlock checks fire together both retry (4). Either way a retry
-	// must have happened and no more than one per transaction.
+	// Usually the one deadlock victim retries once (3 attempts); one run
+	// in a few under load took 4, so the bound allows a second retry. A
+	// retry must have happened, and both changes must have landed (below).
 	if got := attempts.Load(); got < 3 || got > 4 {
 		t.Errorf("%d attempts, want 3 or 4 (a deadlock victim retried)", got)
 	}
