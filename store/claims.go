@@ -45,8 +45,9 @@ type Claim struct {
 // nothing and the labeller's own expired claim is overwritten in place.
 const claimSQL = `
 WITH resume AS (
-	SELECT item_id AS id FROM claims
+	SELECT item_id AS id FROM claims c
 	WHERE labeller_id = $2 AND project_id = $1 AND expires_at > now() AND item_id <> ALL($3)
+		AND NOT EXISTS (SELECT 1 FROM votes v WHERE v.item_id = c.item_id AND v.labeller_id = $2)
 	ORDER BY claimed_at, item_id
 	LIMIT 1
 ), gold AS (
@@ -88,16 +89,22 @@ RETURNING item_id, expires_at, (SELECT how FROM chosen)`
 // labeller in between is invisible to it; this second look, made while the
 // row lock is still held, sees every claim that could compete for the same
 // slot. It cannot be folded into claimSQL: every part of one statement
-// shares that statement's snapshot. It travels in the same round trip as
-// the claim and also returns the labeller's tally since $3.
+// shares that statement's snapshot. The same fresh look tells whether the
+// labeller's vote on the item committed while the claim waited on the
+// claims row that vote deleted: the claim statement cannot see that vote,
+// and without this check it would hand back an item already voted on. It
+// travels in the same round trip as the claim and also returns the
+// labeller's tally since $3.
 const claimCheckSQL = `SELECT ` + itemColumns + `,
 	votes_needed, (SELECT count(*) FROM claims c WHERE c.item_id = items.id AND c.expires_at > now()),
+	EXISTS (SELECT 1 FROM votes v WHERE v.item_id = items.id AND v.labeller_id = $2),
 	(SELECT count(*) FROM votes v WHERE v.labeller_id = $2 AND v.created_at >= $3 AND v.project_id = items.project_id),
 	(SELECT coalesce(sum(seconds), 0) FROM votes v WHERE v.labeller_id = $2 AND v.created_at >= $3 AND v.project_id = items.project_id)
 	FROM items WHERE id = (SELECT item_id FROM claims
 		WHERE labeller_id = $2 AND project_id = $1 AND xmin = pg_current_xact_id()::xid)`
 
-// maxClaimRetries bounds the retries after losing a last slot to a race.
+// maxClaimRetries bounds the retries after losing a last slot to a race
+// (or claiming an item whose vote by the same labeller committed meanwhile).
 const maxClaimRetries = 8
 
 // ClaimNext claims the next item for a labeller, or ErrNotFound when
@@ -138,6 +145,7 @@ func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest, before func(b *
 		var itemID int64
 		var how string
 		var needed, live int
+		var voted bool
 		var b pgx.Batch
 		if before != nil {
 			before(&b)
@@ -148,14 +156,14 @@ func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest, before func(b *
 		})
 		b.Queue(claimCheckSQL, req.ProjectID, req.LabellerID, since).QueryRow(func(row pgx.Row) error {
 			var err error
-			c.Item, err = scanItem(withExtra{Row: row, extra: []any{&needed, &live, &c.Tally.Votes, &c.Tally.Seconds}})
+			c.Item, err = scanItem(withExtra{Row: row, extra: []any{&needed, &live, &voted, &c.Tally.Votes, &c.Tally.Seconds}})
 			return err
 		})
 		if err := tx.SendBatch(ctx, &b).Close(); err != nil {
 			return Claim{}, err
 		}
 		c.Resumed = how == "resume"
-		if how != "open" || live <= needed {
+		if !voted && (how != "open" || live <= needed) {
 			return c, nil
 		}
 		if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, itemID, req.LabellerID); err != nil {

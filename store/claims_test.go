@@ -186,3 +186,74 @@ func TestGoldClaims(t *testing.T) {
 		t.Fatalf("gold claim after voting on the only gold item = %d, %v; want %d", c.Item.ID, err, ids[0])
 	}
 }
+
+// TestClaimWhileOwnVoteCommits asks for the next item while the labeller's
+// vote on the item they hold is still in flight. The claim statement
+// cannot see that uncommitted vote and waits on the claims row the vote
+// deletes; once the vote commits it must not come back with that item.
+func TestClaimWhileOwnVoteCommits(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	ids := addItems(t, f.s, f.project.ID, 3)
+	ana := f.labellers[0].ID
+	held, err := claim(t, f.s, f.project.ID, ana)
+	if err != nil {
+		t.Fatal(err)
+	}
+	// The vote's transaction, as RecordVote writes it: the claim goes, the
+	// vote comes; not committed yet.
+	tx, err := f.s.Pool().Begin(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer tx.Rollback(ctx)
+	if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, held.Item.ID, ana); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := tx.Exec(ctx, `INSERT INTO votes (id, project_id, item_id, labeller_id) VALUES (gen_random_uuid(), $1, $2, $3)`,
+		f.project.ID, held.Item.ID, ana); err != nil {
+		t.Fatal(err)
+	}
+	type result struct {
+		c   store.Claim
+		err error
+	}
+	done := make(chan result, 1)
+	go func() {
+		// The client's prefetch list holds some other item, not the one voted on.
+		c, err := f.s.ClaimNext(ctx, store.ClaimRequest{ProjectID: f.project.ID, LabellerID: ana,
+			Exclude: []int64{ids[2]}, Lifetime: time.Minute})
+		done <- result{c, err}
+	}()
+	// Let the claim reach the row lock before the vote commits.
+	deadline := time.Now().Add(5 * time.Second)
+	for {
+		var waiting int
+		if err := f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM pg_stat_activity
+			WHERE datname = current_database() AND wait_event_type = 'Lock'`).Scan(&waiting); err != nil {
+			t.Fatal(err)
+		}
+		if waiting > 0 || time.Now().After(deadline) {
+			break
+		}
+		time.Sleep(5 * time.Millisecond)
+	}
+	if err := tx.Commit(ctx); err != nil {
+		t.Fatal(err)
+	}
+	r := <-done
+	if r.err != nil {
+		t.Fatal(r.err)
+	}
+	if r.c.Item.ID == held.Item.ID {
+		t.Fatalf("claim handed back item %d, which the labeller just voted on", held.Item.ID)
+	}
+	var left int
+	if err := f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM claims WHERE item_id = $1 AND labeller_id = $2`,
+		held.Item.ID, ana).Scan(&left); err != nil {
+		t.Fatal(err)
+	}
+	if left != 0 {
+		t.Errorf("%d claims left on the item voted on; want 0", left)
+	}
+}
