@@ -59,7 +59,7 @@ func newBrowser(t *testing.T, e *testEnv, u store.User) *browser {
 func (b *browser) step(what string, actions ...chromedp.Action[chromedp.Void]) {
 	b.t.Helper()
 	if err := chromedp.Do(b.ctx, actions...); err != nil {
-		status, _ := chromedp.Run(b.ctx, chromedp.Evaluate[string](`document.getElementById("lab-status").textContent + " | votes " + document.getElementById("lab-votes").textContent + " | path " + document.getElementById("lab-path").textContent`))
+		status, _ := chromedp.Run(b.ctx, chromedp.Evaluate[string](`document.getElementById("lab-status").textContent + " | votes " + document.getElementById("lab-votes").textContent + " | path " + document.getElementById("lab-path").textContent + " | image " + JSON.stringify({hidden: document.getElementById("lab-image").hidden, complete: document.getElementById("lab-image").complete, width: document.getElementById("lab-image").naturalWidth, src: document.getElementById("lab-image").getAttribute("src"), empty: !document.getElementById("lab-empty").hidden})`))
 		b.t.Fatalf("%s: %v (screen says %q)", what, err, status)
 	}
 }

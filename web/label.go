@@ -17,7 +17,7 @@ import (
 const undoWindow = 10 * time.Second
 
 // maxHeld bounds the items a client may say it holds (its queue and its
-// recent skips), so a request cannot make the claim query arbitrarily slow.
+// the items it recently voted on or skipped), so a request cannot make the claim query arbitrarily slow.
 const maxHeld = 50
 
 // itemJSON is all a labeller learns about an item: never its status,

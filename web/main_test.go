@@ -1,8 +1,10 @@
 package web
 
 import (
+	"bytes"
 	"context"
 	"io"
+	"maps"
 	"net/http"
 	"net/http/cookiejar"
 	"net/http/httptest"
@@ -12,6 +14,7 @@ import (
 	"strings"
 	"sync/atomic"
 	"testing"
+	"time"
 
 	"github.com/PuerkitoBio/goquery"
 
@@ -43,9 +46,34 @@ func newTestEnv(t *testing.T) *testEnv {
 	t.Helper()
 	s := testDB.Open(t)
 	srv := New(s, nil, Config{DataDir: t.TempDir()})
-	ts := httptest.NewServer(srv.Handler())
+	ts := httptest.NewServer(logAPI(t, srv.Handler()))
 	t.Cleanup(ts.Close)
 	return &testEnv{t: t, store: s, srv: srv, ts: ts}
+}
+
+// logAPI logs every /api/ exchange (request body, answer, time taken)
+// through t.Logf when CONCORD_TEST_APILOG is set: the log shows, when a
+// browser test fails, what the screen asked and was told.
+func logAPI(t *testing.T, h http.Handler) http.Handler {
+	if os.Getenv("CONCORD_TEST_APILOG") == "" {
+		return h
+	}
+	return http.HandlerFunc(func(w http.ResponseWriter, r *http.Request) {
+		if !strings.HasPrefix(r.URL.Path, "/api/") {
+			h.ServeHTTP(w, r)
+			return
+		}
+		body, _ := io.ReadAll(r.Body)
+		r.Body = io.NopCloser(bytes.NewReader(body))
+		rec := httptest.NewRecorder()
+		start := time.Now()
+		h.ServeHTTP(rec, r)
+		t.Logf("api %s %s %s -> %d %s (%v)", start.Format("15:04:05.000"), r.URL.Path, body, rec.Code,
+			strings.TrimSpace(rec.Body.String()), time.Since(start))
+		maps.Copy(w.Header(), rec.Header())
+		w.WriteHeader(rec.Code)
+		w.Write(rec.Body.Bytes())
+	})
 }
 
 // user creates a user with testPassword.

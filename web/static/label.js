@@ -109,10 +109,13 @@
   // ---- items: a queue of claimed items, the first one on screen ----
   // seen holds items voted on or skipped here: an answer to a request sent
   // before that happened may still offer them, and they must not return.
-  var queue = [], shownAt = 0, skipped = [], busy = false, seen = {};
+  // done lists the latest of them, sent with each request so the server
+  // passes over them too.
+  var queue = [], shownAt = 0, done = [], busy = false, seen = {}, stale = 0;
   function held() {
-    return queue.map(function (it) { return it.id; }).concat(skipped).slice(-50);
+    return queue.map(function (it) { return it.id; }).concat(done.slice(-40));
   }
+  function dealt(id) { seen[id] = true; done.push(id); }
   function preload(it) { var i = new Image(); i.src = it.image; it.pre = i; }
   function show() {
     var it = queue[0];
@@ -137,22 +140,42 @@
   }
 
   function say(msg) { statusEl.textContent = msg; }
-  // Answers can arrive out of order (a claim sent before an undo may
-  // answer after it); only the latest request's tally is shown.
-  var sent = 0, shownSeq = 0;
-  function tally(t, seq) {
-    if (!t || (seq && seq < shownSeq)) return;
-    if (seq) shownSeq = seq;
-    $("lab-votes").textContent = String(t.votes);
-    var m = Math.round(t.seconds / 60);
+
+  // ---- the tally ----
+  // The server's figure is exact only if no vote or undo from this screen
+  // overlapped the request that read it: a claim answered after a vote may
+  // have counted before that vote committed. So the screen keeps its own
+  // figure, moved by each acknowledged vote and undo, and takes the
+  // server's only from a quiet exchange (which also brings in work done in
+  // another tab).
+  var mine = { votes: data.tally.votes, seconds: data.tally.seconds }, writes = 0, writing = 0, voteSecs = {};
+  function drawTally() {
+    $("lab-votes").textContent = String(mine.votes);
+    var m = Math.round(mine.seconds / 60);
     $("lab-time").textContent = Math.floor(m / 60) + ":" + ("0" + (m % 60)).slice(-2);
+  }
+  // exchange is called as a request is sent (write: a vote or an undo);
+  // the function it returns is called on the answer or the failure and
+  // says whether the exchange was quiet.
+  function exchange(write) {
+    var idle = writing === 0;
+    if (write) { writes++; writing++; }
+    var w = writes;
+    return function () {
+      if (write) writing--;
+      return idle && writes === w;
+    };
+  }
+  function tally(t, quiet, votes, seconds) {
+    if (quiet && t) { mine.votes = t.votes; mine.seconds = t.seconds; }
+    else { mine.votes = Math.max(0, mine.votes + votes); mine.seconds = Math.max(0, mine.seconds + seconds); }
+    drawTally();
   }
 
   // post sends JSON and retries network failures (not refusals) a few
   // times: the server makes retries safe.
   function post(path, body, tries) {
     tries = tries || 3;
-    var seq = ++sent;
     return fetch(api + path, {
       method: "POST", credentials: "same-origin",
       headers: { "Content-Type": "application/json", "Accept": "application/json" },
@@ -160,7 +183,6 @@
     }).then(function (r) {
       return r.json().then(function (j) {
         if (!r.ok) throw { refused: true, msg: j.error || ("Error " + r.status) };
-        j.seq = seq;
         return j;
       });
     }, function (e) {
@@ -176,16 +198,22 @@
   function fill() {
     if (queue.length >= 2 || busy) return Promise.resolve();
     busy = true;
+    var ended = exchange(false);
     return post("/next", { exclude: held() }).then(function (j) {
       busy = false;
-      tally(j.tally, j.seq);
+      tally(j.tally, ended(), 0, 0);
       var before = queue.length;
       add(j.next);
+      if (queue.length > before) { stale = 0; return fill(); }
       // An answer to a request sent before a skip or vote may offer an item
-      // already dealt with; add drops it, so ask again with the new list.
-      if (queue.length > before || (j.next && seen[j.next.id])) return fill();
+      // already dealt with; add drops it, so ask again with the new list,
+      // a few times and more slowly each time, never in a tight loop.
+      if (j.next && seen[j.next.id] && stale < 5) {
+        stale++;
+        return new Promise(function (ok) { setTimeout(ok, 100 * stale); }).then(fill);
+      }
       if (!queue.length) show();
-    }, function (e) { busy = false; fail(e); });
+    }, function (e) { busy = false; ended(); fail(e); });
   }
 
   function uuid() {
@@ -203,19 +231,21 @@
     if (!it) return;
     var secs = Math.min((performance.now() - shownAt) / 1000, 86400);
     queue.shift();
-    seen[it.id] = true;
+    dealt(it.id);
     var body = { id: uuid(), item: it.id, label: key, seconds: Math.round(secs * 100) / 100, exclude: held() };
     show();
     say(key == null ? "Saved: can't tell." : "Saved: " + byKey(key) + ".");
+    voteSecs[it.id] = body.seconds;
+    var ended = exchange(true);
     post("/votes", body).then(function (j) {
-      tally(j.tally, j.seq);
+      tally(j.tally, ended(), 1, body.seconds);
       if (j.feedback) {
         say(j.feedback.correct ? "Check item: right, it is " + j.feedback.expected + "." :
           "Check item: the expected label was " + j.feedback.expected + ".");
       }
       add(j.next);
       return fill();
-    }, fail);
+    }, function (e) { ended(); fail(e); });
   }
   function byKey(k) {
     for (var i = 0; i < data.labels.length; i++) if (data.labels[i].key === k) return data.labels[i].name;
@@ -225,24 +255,27 @@
   function skip() {
     var it = queue.shift();
     if (!it) return;
-    skipped.push(it.id);
-    seen[it.id] = true;
+    dealt(it.id);
     show();
     say("Skipped.");
     post("/skip", { item: it.id, exclude: held() }).then(function (j) { add(j.next); return fill(); }, fail);
   }
 
   function undo() {
+    var ended = exchange(true);
     post("/undo", {}).then(function (j) {
-      tally(j.tally, j.seq);
+      // A vote taken back that was cast in another tab moves the time by
+      // an unknown amount until the next quiet exchange.
+      tally(j.tally, ended(), -1, -(j.item && voteSecs[j.item.id] || 0));
       if (!j.item) return;
       delete seen[j.item.id];
+      done = done.filter(function (id) { return id !== j.item.id; });
       queue = queue.filter(function (q) { return q.id !== j.item.id; });
       preload(j.item);
       queue.unshift(j.item);
       show();
       say("Vote taken back; label this image again.");
-    }, fail);
+    }, function (e) { ended(); fail(e); });
   }
 
   // ---- keys ----
@@ -279,7 +312,7 @@
   $("lab-skip").addEventListener("click", skip);
   $("lab-undo").addEventListener("click", undo);
 
-  tally(data.tally);
+  drawTally();
   reset();
   fill();
 })();
