@@ -46,7 +46,9 @@ func TestLeadPagesInBrowser(t *testing.T) {
 		chromedp.SendKeys(chromedp.CSS(`input[name=login]`), lead.Login),
 		chromedp.SendKeys(chromedp.CSS(`input[name=password]`), testPassword),
 		chromedp.Submit(chromedp.CSS(`input[name=password]`)),
-		chromedp.WaitVisible(chromedp.CSS(`h1`)),
+		// The login page has an h1 too: wait for the start page's project
+		// cards, or the next navigation could abort the login's POST.
+		chromedp.WaitVisible(chromedp.CSS(`.cards`)),
 	)
 	if err != nil {
 		t.Fatalf("log in: %v", err)
