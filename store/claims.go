@@ -24,7 +24,9 @@ type ClaimRequest struct {
 	GoldSeed int64
 	// Lifetime is how long the claim lasts (the project's claim seconds).
 	Lifetime time.Duration
-	// TallySince starts the labeller's tally returned with the claim.
+	// TallySince starts the labeller's tally returned with the claim; the
+	// zero time counts nothing (Claim.Tally stays zero), which spares the
+	// claim a read of the labeller's votes.
 	TallySince time.Time
 }
 
@@ -94,13 +96,14 @@ RETURNING item_id, expires_at, (SELECT how FROM chosen)`
 // claims row that vote deleted: the claim statement cannot see that vote,
 // and without this check it would hand back an item already voted on. It
 // travels in the same round trip as the claim and also returns the
-// labeller's tally since $3.
+// labeller's tally since $3 (none when $3 is NULL).
 const claimCheckSQL = `SELECT ` + itemColumns + `,
 	votes_needed, (SELECT count(*) FROM claims c WHERE c.item_id = items.id AND c.expires_at > now()),
 	EXISTS (SELECT 1 FROM votes v WHERE v.item_id = items.id AND v.labeller_id = $2),
-	(SELECT count(*) FROM votes v WHERE v.labeller_id = $2 AND v.created_at >= $3 AND v.project_id = items.project_id),
-	(SELECT coalesce(sum(seconds), 0) FROM votes v WHERE v.labeller_id = $2 AND v.created_at >= $3 AND v.project_id = items.project_id)
-	FROM items WHERE id = (SELECT item_id FROM claims
+	t.votes, t.seconds
+	FROM items, (SELECT count(*) AS votes, coalesce(sum(seconds), 0) AS seconds FROM votes v
+		WHERE $3::timestamptz IS NOT NULL AND v.labeller_id = $2 AND v.project_id = $1 AND v.created_at >= $3) t
+	WHERE id = (SELECT item_id FROM claims
 		WHERE labeller_id = $2 AND project_id = $1 AND xmin = pg_current_xact_id()::xid)`
 
 // maxClaimRetries bounds the retries after losing a last slot to a race
@@ -136,9 +139,9 @@ func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest, before func(b *
 	if secs <= 0 {
 		secs = 300
 	}
-	since := req.TallySince
-	if since.IsZero() {
-		since = time.Unix(0, 0)
+	var since *time.Time
+	if !req.TallySince.IsZero() {
+		since = &req.TallySince
 	}
 	for range maxClaimRetries {
 		var c Claim

@@ -257,3 +257,47 @@ func TestClaimWhileOwnVoteCommits(t *testing.T) {
 		t.Errorf("%d claims left on the item voted on; want 0", left)
 	}
 }
+
+// TestClaimTally: a claim returns the labeller's tally in the project
+// since the time asked for, and counts nothing when no time is given.
+func TestClaimTally(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	addItems(t, f.s, f.project.ID, 5)
+	ana := f.labellers[0].ID
+	glass := f.labels["glass"].ID
+	for i, secs := range []float64{1.5, 2.25} {
+		c, err := claim(t, f.s, f.project.ID, ana)
+		if err != nil {
+			t.Fatal(err)
+		}
+		v := store.NewVote{ID: fmt.Sprintf("7a1f0000-3333-4a2b-9c3d-00000000000%d", i+1), ProjectID: f.project.ID,
+			ItemID: c.Item.ID, LabellerID: ana, LabelID: &glass, Seconds: secs}
+		if _, err := f.s.RecordVote(ctx, v, countDecider); err != nil {
+			t.Fatal(err)
+		}
+	}
+	asked, err := f.s.ClaimNext(ctx, store.ClaimRequest{ProjectID: f.project.ID, LabellerID: ana,
+		Lifetime: time.Minute, TallySince: time.Now().Add(-time.Hour)})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if asked.Tally != (store.Tally{Votes: 2, Seconds: 3.75}) {
+		t.Errorf("tally since an hour ago = %+v, want 2 votes, 3.75 s", asked.Tally)
+	}
+	later, err := f.s.ClaimNext(ctx, store.ClaimRequest{ProjectID: f.project.ID, LabellerID: ana,
+		Lifetime: time.Minute, TallySince: time.Now().Add(time.Hour), Exclude: []int64{asked.Item.ID}})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if later.Tally != (store.Tally{}) {
+		t.Errorf("tally since an hour ahead = %+v, want nothing", later.Tally)
+	}
+	none, err := claim(t, f.s, f.project.ID, ana, asked.Item.ID, later.Item.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if none.Tally != (store.Tally{}) {
+		t.Errorf("tally not asked for = %+v, want zero", none.Tally)
+	}
+}

@@ -78,11 +78,15 @@ func (s *Server) checkCanLabel(r *http.Request, p *store.Project) error {
 }
 
 // claimRequest asks for the labeller's next item, drawing against the
-// gold rate first.
-func (s *Server) claimRequest(r *http.Request, p *store.Project, exclude []int64) store.ClaimRequest {
-	return store.ClaimRequest{ProjectID: p.ID, LabellerID: userFrom(r.Context()).ID, Exclude: exclude,
+// gold rate first, and for their tally of today when withTally.
+func (s *Server) claimRequest(r *http.Request, p *store.Project, exclude []int64, withTally bool) store.ClaimRequest {
+	c := store.ClaimRequest{ProjectID: p.ID, LabellerID: userFrom(r.Context()).ID, Exclude: exclude,
 		Gold: rand.Float64() < p.Policy.GoldRate, GoldSeed: rand.Int64(),
-		Lifetime: time.Duration(p.Policy.ClaimSeconds) * time.Second, TallySince: s.today()}
+		Lifetime: time.Duration(p.Policy.ClaimSeconds) * time.Second}
+	if withTally {
+		c.TallySince = s.today()
+	}
+	return c
 }
 
 func (s *Server) today() time.Time {
@@ -91,16 +95,22 @@ func (s *Server) today() time.Time {
 	return time.Date(y, m, d, 0, 0, 0, 0, now.Location())
 }
 
-// claimFor claims the next item.
-func (s *Server) claimFor(r *http.Request, p *store.Project, exclude []int64) (*itemJSON, error) {
-	c, err := s.store.ClaimNext(r.Context(), s.claimRequest(r, p, exclude))
-	if errors.Is(err, store.ErrNotFound) {
-		return nil, nil
+// claimFor claims the next item, with the labeller's tally when withTally
+// (else the tally is nil).
+func (s *Server) claimFor(r *http.Request, p *store.Project, exclude []int64, withTally bool) (*itemJSON, *store.Tally, error) {
+	c, err := s.store.ClaimNext(r.Context(), s.claimRequest(r, p, exclude, withTally))
+	switch {
+	case errors.Is(err, store.ErrNotFound) && withTally:
+		t, err := s.tally(r, p)
+		return nil, t, err
+	case errors.Is(err, store.ErrNotFound):
+		return nil, nil, nil
+	case err != nil:
+		return nil, nil, err
+	case withTally:
+		return itemView(p, c.Item), &c.Tally, nil
 	}
-	if err != nil {
-		return nil, err
-	}
-	return itemView(p, c.Item), nil
+	return itemView(p, c.Item), nil, nil
 }
 
 func (s *Server) tally(r *http.Request, p *store.Project) (*store.Tally, error) {
@@ -125,11 +135,15 @@ func checkHeld(ids []int64) error {
 	return nil
 }
 
-// claimNext hands out the next item: POST {"exclude": [ids held]}.
+// claimNext hands out the next item: POST {"exclude": [ids held],
+// "tally": true to have the labeller's tally of today in the answer}.
+// The tally is asked for, not always sent: the screen keeps its own count
+// and checks it now and then, and every vote is spared reading it.
 func (s *Server) claimNext(w http.ResponseWriter, r *http.Request) error {
 	p := projectFrom(r.Context())
 	var req struct {
 		Exclude []int64 `json:"exclude"`
+		Tally   bool    `json:"tally"`
 	}
 	if err := decodeJSON(r, &req); err != nil {
 		return err
@@ -140,11 +154,7 @@ func (s *Server) claimNext(w http.ResponseWriter, r *http.Request) error {
 	if err := s.checkCanLabel(r, p); err != nil {
 		return err
 	}
-	next, err := s.claimFor(r, p, req.Exclude)
-	if err != nil {
-		return err
-	}
-	t, err := s.tally(r, p)
+	next, t, err := s.claimFor(r, p, req.Exclude, req.Tally)
 	if err != nil {
 		return err
 	}
@@ -160,6 +170,7 @@ type voteRequest struct {
 	Label   *string `json:"label"`
 	Seconds float64 `json:"seconds"`
 	Exclude []int64 `json:"exclude"`
+	Tally   bool    `json:"tally"` // send the labeller's tally of today back
 }
 
 // createVote records a vote and claims the next item in one round trip.
@@ -185,7 +196,7 @@ func (s *Server) createVote(w http.ResponseWriter, r *http.Request) error {
 	// Membership is checked inside the vote's SQL (a paused member's claim
 	// does not count), so the common case costs no extra query.
 	vote := store.NewVote{ID: req.ID, ProjectID: p.ID, ItemID: req.Item, LabellerID: u.ID, LabelKey: req.Label, Seconds: req.Seconds}
-	next := s.claimRequest(r, p, append(req.Exclude, req.Item))
+	next := s.claimRequest(r, p, append(req.Exclude, req.Item), req.Tally)
 	res, claim, err := s.store.RecordVoteAndClaim(ctx, vote, s.decider(p), &next)
 	switch {
 	case errors.Is(err, store.ErrUnknownLabel):
@@ -206,10 +217,16 @@ func (s *Server) createVote(w http.ResponseWriter, r *http.Request) error {
 			return err
 		}
 	}
-	if claim != nil {
-		out.Next, out.Tally = itemView(p, claim.Item), &claim.Tally
-	} else if out.Tally, err = s.tally(r, p); err != nil {
-		return err
+	switch {
+	case claim != nil:
+		out.Next = itemView(p, claim.Item)
+		if req.Tally {
+			out.Tally = &claim.Tally
+		}
+	case req.Tally:
+		if out.Tally, err = s.tally(r, p); err != nil {
+			return err
+		}
 	}
 	return writeJSON(w, http.StatusOK, out)
 }
@@ -269,7 +286,7 @@ func (s *Server) skipItem(w http.ResponseWriter, r *http.Request) error {
 	if err := s.store.ReleaseClaim(r.Context(), p.ID, userFrom(r.Context()).ID, req.Item); err != nil {
 		return err
 	}
-	next, err := s.claimFor(r, p, append(req.Exclude, req.Item))
+	next, _, err := s.claimFor(r, p, append(req.Exclude, req.Item), false)
 	if err != nil {
 		return err
 	}

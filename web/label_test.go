@@ -133,7 +133,7 @@ type labelResponseJSON struct {
 }
 
 func voteBody(id string, item int64, label string, exclude ...int64) string {
-	b, _ := json.Marshal(map[string]any{"id": id, "item": item, "label": nilIfEmpty(label), "seconds": 1.5, "exclude": exclude})
+	b, _ := json.Marshal(map[string]any{"id": id, "item": item, "label": nilIfEmpty(label), "seconds": 1.5, "exclude": exclude, "tally": true})
 	return string(b)
 }
 
@@ -160,6 +160,14 @@ func TestLabellingFlow(t *testing.T) {
 	first := apiResult(t, c.postJSON("/api/p/"+p.Slug+"/next", `{"exclude":[]}`), http.StatusOK)
 	if first.Next == nil || first.Next.ID != ids[0] {
 		t.Fatalf("first claim = %+v, want item %d", first.Next, ids[0])
+	}
+	// The tally comes only when asked for.
+	if first.Tally != nil {
+		t.Errorf("claim not asking for the tally got %+v", first.Tally)
+	}
+	again := apiResult(t, c.postJSON("/api/p/"+p.Slug+"/next", `{"exclude":[],"tally":true}`), http.StatusOK)
+	if again.Next == nil || again.Next.ID != ids[0] || again.Tally == nil || *again.Tally != (store.Tally{}) {
+		t.Fatalf("claim asking for the tally = %+v, tally %+v; want item %d again and a zero tally", again.Next, again.Tally, ids[0])
 	}
 	// The image is served to the claimant and is the PNG stored.
 	resp := c.get(first.Next.Image)

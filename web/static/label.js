@@ -145,10 +145,13 @@
   // The server's figure is exact only if no vote or undo from this screen
   // overlapped the request that read it: a claim answered after a vote may
   // have counted before that vote committed. So the screen keeps its own
-  // figure, moved by each acknowledged vote and undo, and takes the
-  // server's only from a quiet exchange (which also brings in work done in
-  // another tab).
-  var mine = { votes: data.tally.votes, seconds: data.tally.seconds }, writes = 0, writing = 0, voteSecs = {};
+  // figure, moved by each acknowledged vote and undo, and asks for the
+  // server's (which also brings in work done in another tab) only on a
+  // quiet exchange and at most every half minute: counting costs the
+  // server a read of the day's votes.
+  var mine = { votes: data.tally.votes, seconds: data.tally.seconds }, writes = 0, writing = 0, voteSecs = {},
+    tallyAt = performance.now();
+  function askTally() { return writing === 0 && performance.now() - tallyAt > 30000; }
   function drawTally() {
     $("lab-votes").textContent = String(mine.votes);
     var m = Math.round(mine.seconds / 60);
@@ -167,7 +170,7 @@
     };
   }
   function tally(t, quiet, votes, seconds) {
-    if (quiet && t) { mine.votes = t.votes; mine.seconds = t.seconds; }
+    if (quiet && t) { mine.votes = t.votes; mine.seconds = t.seconds; tallyAt = performance.now(); }
     else { mine.votes = Math.max(0, mine.votes + votes); mine.seconds = Math.max(0, mine.seconds + seconds); }
     drawTally();
   }
@@ -198,8 +201,8 @@
   function fill() {
     if (queue.length >= 2 || busy) return Promise.resolve();
     busy = true;
-    var ended = exchange(false);
-    return post("/next", { exclude: held() }).then(function (j) {
+    var ask = askTally(), ended = exchange(false);
+    return post("/next", { exclude: held(), tally: ask }).then(function (j) {
       busy = false;
       tally(j.tally, ended(), 0, 0);
       var before = queue.length;
@@ -232,7 +235,7 @@
     var secs = Math.min((performance.now() - shownAt) / 1000, 86400);
     queue.shift();
     dealt(it.id);
-    var body = { id: uuid(), item: it.id, label: key, seconds: Math.round(secs * 100) / 100, exclude: held() };
+    var body = { id: uuid(), item: it.id, label: key, seconds: Math.round(secs * 100) / 100, exclude: held(), tally: askTally() };
     show();
     say(key == null ? "Saved: can't tell." : "Saved: " + byKey(key) + ".");
     voteSecs[it.id] = body.seconds;
