@@ -252,6 +252,33 @@ func (s *Store) SaveLabellerStats(ctx context.Context, projectID int64, stats []
 	return nil
 }
 
+// GoldMark is a labeller's gold figures when a lead last set their status.
+type GoldMark struct {
+	Correct, Total int
+}
+
+// GoldMarks returns the marks of a project's members that have one (a
+// lead set their status after some gold answers), by user id.
+func (s *Store) GoldMarks(ctx context.Context, projectID int64) (map[int64]GoldMark, error) {
+	rows, err := s.pool.Query(ctx, `
+		SELECT user_id, gold_correct_mark, gold_total_mark FROM project_members
+		WHERE project_id = $1 AND gold_total_mark > 0`, projectID)
+	if err != nil {
+		return nil, fmt.Errorf("gold marks of project %d: %w", projectID, err)
+	}
+	defer rows.Close()
+	out := map[int64]GoldMark{}
+	for rows.Next() {
+		var id int64
+		var m GoldMark
+		if err := rows.Scan(&id, &m.Correct, &m.Total); err != nil {
+			return nil, fmt.Errorf("gold marks of project %d: %w", projectID, err)
+		}
+		out[id] = m
+	}
+	return out, rows.Err()
+}
+
 // AutoPause pauses an active member with a reason; their votes stay. It
 // reports whether the member was active (and is now paused). Members a lead
 // paused or blocked are left as they are.

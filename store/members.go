@@ -26,10 +26,15 @@ func (s *Store) AddMember(ctx context.Context, projectID, userID int64) error {
 	return nil
 }
 
-// SetMemberStatus pauses, resumes or blocks a labeller in one project.
+// SetMemberStatus pauses, resumes or blocks a labeller in one project: a
+// lead's decision. It marks the labeller's gold figures of the last fit,
+// so that AutoPause weighs only gold answers given after it.
 func (s *Store) SetMemberStatus(ctx context.Context, projectID, userID int64, status, reason string) error {
 	tag, err := s.pool.Exec(ctx, `
-		UPDATE project_members SET status = $3, status_reason = $4 WHERE project_id = $1 AND user_id = $2`,
+		UPDATE project_members SET status = $3, status_reason = $4,
+			gold_correct_mark = coalesce((SELECT gold_correct FROM labeller_stats WHERE project_id = $1 AND user_id = $2), 0),
+			gold_total_mark = coalesce((SELECT gold_total FROM labeller_stats WHERE project_id = $1 AND user_id = $2), 0)
+		WHERE project_id = $1 AND user_id = $2`,
 		projectID, userID, status, reason)
 	if err != nil {
 		return fmt.Errorf("set status of user %d in project %d: %w", userID, projectID, mapErr(err))

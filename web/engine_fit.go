@@ -322,6 +322,10 @@ func (s *Server) saveLabellers(ctx context.Context, f *fitData, ds *agreement.Da
 		}
 	}
 	floor := f.project.Policy.AccuracyFloor
+	marks, err := s.store.GoldMarks(ctx, f.project.ID)
+	if err != nil {
+		return err
+	}
 	for i, r := range reports {
 		st := store.LabellerStats{UserID: f.labIDs[r.Labeller], LabellerFigures: store.LabellerFigures{Votes: r.Votes,
 			MedianSeconds: finite(r.MedianSeconds), Accuracy: finite(r.EstimatedAccuracy),
@@ -335,9 +339,7 @@ func (s *Server) saveLabellers(ctx context.Context, f *fitData, ds *agreement.Da
 				Prior: ds.Prior, Matrix: slices.Clone(ds.ConfusionOf(r.Labeller))}
 		}
 		stats[i] = st
-		if r.GoldVotes > 0 && r.GoldHi < floor {
-			reason := fmt.Sprintf("Paused automatically on %s: %d of %d gold items right; the 95%% interval %.2f to %.2f lies below the project's floor of %.2f. Your votes are kept. Your lead will review this with you and decide.",
-				s.now().UTC().Format("2006-01-02"), r.GoldCorrect, r.GoldVotes, r.GoldLo, r.GoldHi, floor)
+		if reason := pauseReason(r, marks[st.UserID], floor, s.now()); reason != "" {
 			paused, err := s.store.AutoPause(ctx, f.project.ID, st.UserID, reason)
 			if err != nil {
 				return err
@@ -348,6 +350,29 @@ func (s *Server) saveLabellers(ctx context.Context, f *fitData, ds *agreement.Da
 		}
 	}
 	return s.store.SaveLabellerStats(ctx, f.project.ID, stats)
+}
+
+// pauseReason says why a labeller is paused automatically, or "" when
+// they are not: the upper end of the Wilson interval of their gold
+// accuracy lies below the floor. Only gold answers given after mark (their
+// figures when a lead last set their status) count, so a lead who resumes
+// a labeller is not overruled on the evidence they already weighed.
+func pauseReason(r agreement.LabellerReport, mark store.GoldMark, floor float64, now time.Time) string {
+	right, seen := r.GoldCorrect-mark.Correct, r.GoldVotes-mark.Total
+	if seen <= 0 || right < 0 {
+		return ""
+	}
+	lo, hi := r.GoldLo, r.GoldHi
+	since := ""
+	if mark.Total > 0 {
+		lo, hi = agreement.WilsonInterval(right, seen, 1.959964) // the 95% normal quantile, as the fit uses
+		since = " since your lead last set your status"
+	}
+	if !(hi < floor) {
+		return ""
+	}
+	return fmt.Sprintf("Paused automatically on %s: %d of %d gold items right%s; the 95%% interval %.2f to %.2f lies below the project's floor of %.2f. Your votes are kept. Your lead will review this with you and decide.",
+		now.UTC().Format("2006-01-02"), right, seen, since, lo, hi, floor)
 }
 
 // finite returns nil for NaN and infinities, which JSON and the pages

@@ -113,6 +113,37 @@ func TestRefitProject(t *testing.T) {
 		t.Errorf("paused labeller claims: %d, want 403", resp.StatusCode)
 	}
 
+	// A lead resumes them: the next fit, on the same evidence, leaves them
+	// active; ten more gold items all wrong pause them again, on those ten.
+	if err := e.store.SetMemberStatus(ctx, p.ID, us[3].ID, store.StatusActive, "talked it through"); err != nil {
+		t.Fatal(err)
+	}
+	if err := e.srv.RefitProject(ctx, p.ID); err != nil {
+		t.Fatal(err)
+	}
+	if m, _ := e.store.MemberOf(ctx, p.ID, us[3].ID); m.Status != store.StatusActive {
+		t.Errorf("resumed labeller after a refit on the same gold answers: %s (%q), want active", m.Status, m.StatusReason)
+	}
+	more := e.drawnItems(proj, 10)
+	for i, id := range more {
+		if err := e.store.SetGoldAnswer(ctx, p.ID, id, lab[keys[i%3]], store.GoldSourceGold, nil); err != nil {
+			t.Fatal(err)
+		}
+		wrong := lab[keys[(i+1)%3]]
+		n++
+		castVote(t, e, p, us[3], id, &wrong, n)
+	}
+	if err := e.srv.RefitProject(ctx, p.ID); err != nil {
+		t.Fatal(err)
+	}
+	if m, _ := e.store.MemberOf(ctx, p.ID, us[3].ID); m.Status != store.StatusPaused ||
+		!strings.Contains(m.StatusReason, "0 of 10 gold items right since your lead last set your status") {
+		t.Errorf("resumed labeller after ten more wrong gold answers: %s (%q), want paused on those ten", m.Status, m.StatusReason)
+	}
+	if err := e.store.SetMemberStatus(ctx, p.ID, us[3].ID, store.StatusActive, "second chance"); err != nil {
+		t.Fatal(err)
+	}
+
 	// The vote path's posterior for an item, from the stored matrices, is
 	// the fit's own posterior: the E-step with the fitted parameters.
 	var post []float64
