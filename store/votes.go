@@ -71,7 +71,7 @@ func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decide
 		if err != nil {
 			return err
 		}
-		write, err := finishVote(ctx, tx, v, decide, &res)
+		write, err := finishVote(ctx, tx, v, decide, &res, &row)
 		if err != nil {
 			return err
 		}
@@ -118,8 +118,17 @@ func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, before *pgx.B
 }
 
 // voteSQL deletes the claim, inserts the vote and locks the item row (the
-// count goes up with the item's new status, in one row version). A paused or blocked member's claim does not match, so their
-// vote is refused like one without a claim.
+// count goes up with the item's new status, in one row version). A paused
+// or blocked member's claim does not match, so their vote is refused like
+// one without a claim.
+//
+// It also reads what deciding the item's new state needs: its gold answer,
+// the project's last fit, and its labelled votes with the new one merged
+// in by (created_at, id). Those votes come from the statement's snapshot,
+// taken before the row lock was granted; the locked row's vote_count is
+// the latest committed. When the two disagree, a vote on the item
+// committed (or was taken back) while this one waited, and the caller
+// reads the votes again (itemVotes).
 const voteSQL = `
 WITH lbl AS (
 	SELECT id FROM taxonomy_nodes WHERE project_id = $2 AND key = $7
@@ -135,24 +144,53 @@ WITH lbl AS (
 	ON CONFLICT (id) DO NOTHING
 	RETURNING label_id
 ), lock AS (
-	SELECT id FROM items
+	SELECT id, vote_count FROM items
 	WHERE id = $3 AND EXISTS (SELECT 1 FROM ins WHERE label_id IS NOT NULL)
 	FOR UPDATE
 )
 SELECT EXISTS (SELECT 1 FROM ins), (SELECT label_id FROM ins),
-	$7::text IS NULL OR EXISTS (SELECT 1 FROM lbl), (SELECT count(*) FROM lock)`
+	$7::text IS NULL OR EXISTS (SELECT 1 FROM lbl), (SELECT vote_count FROM lock),
+	(SELECT label_id FROM gold_answers WHERE item_id = $3),
+	(SELECT fitted_at FROM project_stats WHERE project_id = $2),
+	coalesce(array_agg(x.labeller_id ORDER BY x.created_at, x.id), '{}'),
+	coalesce(array_agg(x.label_id ORDER BY x.created_at, x.id), '{}')
+FROM (
+	SELECT labeller_id, label_id, created_at, id FROM votes
+	WHERE item_id = $3 AND label_id IS NOT NULL AND EXISTS (SELECT 1 FROM lock)
+	UNION ALL
+	SELECT $4, label_id, now(), $1::uuid FROM ins WHERE label_id IS NOT NULL
+) x`
 
 // voteRow is voteSQL's answer.
 type voteRow struct {
 	inserted, labelKnown bool
 	label                *int64
+	locked               *int   // the locked item's committed count; nil without a lock
+	gold                 *int64 // the item's gold answer
+	fitted               *time.Time
+	labellers, labels    []int64 // the item's labelled votes, the new one included
 }
 
 func (r *voteRow) queue(b *pgx.Batch, v NewVote) {
 	b.Queue(voteSQL, v.ID, v.ProjectID, v.ItemID, v.LabellerID, v.LabelID, v.Seconds, v.LabelKey).QueryRow(func(row pgx.Row) error {
 		*r = voteRow{}
-		return row.Scan(&r.inserted, &r.label, &r.labelKnown, new(int))
+		return row.Scan(&r.inserted, &r.label, &r.labelKnown, &r.locked, &r.gold, &r.fitted, &r.labellers, &r.labels)
 	})
+}
+
+// itemVotes returns the item's votes read with the vote, or false when a
+// vote on the item committed meanwhile and they must be read again.
+func (r *voteRow) itemVotes(ctx context.Context, tx pgx.Tx, projectID, itemID int64) (ItemVotes, bool) {
+	if r.locked == nil || len(r.labels) != *r.locked+1 {
+		return ItemVotes{}, false
+	}
+	iv := ItemVotes{ProjectID: projectID, ItemID: itemID, Labellers: r.labellers, Labels: r.labels,
+		GoldLabel: r.gold, VoteCount: len(r.labels)}
+	if r.fitted != nil {
+		iv.FittedAt = *r.fitted
+	}
+	iv.LoadModel = func() (ProjectModel, error) { return projectModel(ctx, tx, projectID) }
+	return iv, true
 }
 
 func (r *voteRow) result() (VoteResult, error) {
@@ -167,17 +205,22 @@ func (r *voteRow) result() (VoteResult, error) {
 
 // finishVote reads what the stored vote changes and returns, unsent, the
 // statements that write it, so they can share a round trip with the claim.
-func finishVote(ctx context.Context, tx pgx.Tx, v NewVote, decide Decider, res *VoteResult) (*pgx.Batch, error) {
+func finishVote(ctx context.Context, tx pgx.Tx, v NewVote, decide Decider, res *VoteResult, row *voteRow) (*pgx.Batch, error) {
 	var b pgx.Batch
 	if res.VotedLabel == nil {
 		// "Can't tell" changes no count and no consensus, but the gold
 		// answer still decides the feedback.
-		b.Queue(`SELECT (SELECT label_id FROM gold_answers WHERE item_id = $1)`, v.ItemID).QueryRow(func(row pgx.Row) error {
-			return row.Scan(&res.GoldLabel)
-		})
+		res.GoldLabel = row.gold
 		return &b, nil
 	}
-	sql, args, err := itemWrite(ctx, tx, v.ProjectID, v.ItemID, decide, &res.GoldLabel, 1)
+	iv, fresh := row.itemVotes(ctx, tx, v.ProjectID, v.ItemID)
+	if !fresh {
+		var err error
+		if iv, err = itemVotes(ctx, tx, v.ProjectID, v.ItemID); err != nil {
+			return nil, err
+		}
+	}
+	sql, args, err := itemDecision(ctx, v.ProjectID, v.ItemID, iv, decide, &res.GoldLabel, 1)
 	if err != nil {
 		return nil, err
 	}
@@ -225,6 +268,12 @@ func itemWrite(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide D
 	if err != nil {
 		return "", nil, err
 	}
+	return itemDecision(ctx, projectID, itemID, iv, decide, gold, delta)
+}
+
+// itemDecision decides the item's new state from its votes and returns
+// the statement that writes it.
+func itemDecision(ctx context.Context, projectID, itemID int64, iv ItemVotes, decide Decider, gold **int64, delta int) (string, []any, error) {
 	*gold = iv.GoldLabel
 	if iv.GoldLabel != nil || decide == nil {
 		return `UPDATE items SET vote_count = vote_count + $2 WHERE id = $1`, []any{itemID, delta}, nil

@@ -3,6 +3,7 @@ package store_test
 import (
 	"context"
 	"errors"
+	"fmt"
 	"sync"
 	"testing"
 	"time"
@@ -199,5 +200,85 @@ func TestProjectLockIsExclusive(t *testing.T) {
 	ran, err = f.s.WithProjectLock(ctx, f.project.ID, func(context.Context) error { return nil })
 	if err != nil || !ran {
 		t.Errorf("lock after release: ran %v, %v", ran, err)
+	}
+}
+
+// TestVoteSeesVoteCommittedWhileWaiting: a vote reads the item's votes in
+// its own statement, from a snapshot taken before it waits for the item's
+// row lock. A vote by someone else committed during that wait must still
+// reach the decider, as must the new vote itself, in time order.
+func TestVoteSeesVoteCommittedWhileWaiting(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	id := addItems(t, f.s, f.project.ID, 1)[0]
+	ana, ben := f.labellers[0].ID, f.labellers[1].ID
+	glass := f.labels["glass"].ID
+	if _, err := f.s.Pool().Exec(ctx, `UPDATE items SET votes_needed = 2 WHERE id = $1`, id); err != nil {
+		t.Fatal(err)
+	}
+	for _, who := range []int64{ana, ben} {
+		if _, err := f.s.Pool().Exec(ctx, `INSERT INTO claims (item_id, labeller_id, project_id, expires_at)
+			VALUES ($1, $2, $3, now() + interval '1 minute')`, id, who, f.project.ID); err != nil {
+			t.Fatal(err)
+		}
+	}
+	var seen [][]int64
+	var mu sync.Mutex
+	decide := func(ctx context.Context, iv store.ItemVotes) (store.ItemUpdate, error) {
+		mu.Lock()
+		seen = append(seen, iv.Labellers)
+		mu.Unlock()
+		return countDecider(ctx, iv)
+	}
+	// Someone else's vote, committed while ben's vote waits on the row:
+	// written by hand in a transaction that holds the item row.
+	tx, err := f.s.Pool().Begin(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer tx.Rollback(ctx)
+	if _, err := tx.Exec(ctx, `SELECT 1 FROM items WHERE id = $1 FOR UPDATE`, id); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, id, ana); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := tx.Exec(ctx, `INSERT INTO votes (id, project_id, item_id, labeller_id, label_id, seconds)
+		VALUES (gen_random_uuid(), $1, $2, $3, $4, 1)`, f.project.ID, id, ana, glass); err != nil {
+		t.Fatal(err)
+	}
+	if _, err := tx.Exec(ctx, `UPDATE items SET vote_count = vote_count + 1 WHERE id = $1`, id); err != nil {
+		t.Fatal(err)
+	}
+	done := make(chan error, 1)
+	go func() {
+		_, err := f.s.RecordVote(ctx, store.NewVote{ID: fmt.Sprintf("9b1e0000-4444-4a2b-9c3d-%012d", time.Now().UnixNano()%1e12), ProjectID: f.project.ID,
+			ItemID: id, LabellerID: ben, LabelID: &glass, Seconds: 2}, decide)
+		done <- err
+	}()
+	deadline := time.Now().Add(5 * time.Second)
+	for {
+		var waiting int
+		if err := f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM pg_stat_activity
+			WHERE datname = current_database() AND wait_event_type = 'Lock'`).Scan(&waiting); err != nil {
+			t.Fatal(err)
+		}
+		if waiting > 0 || time.Now().After(deadline) {
+			break
+		}
+		time.Sleep(5 * time.Millisecond)
+	}
+	if err := tx.Commit(ctx); err != nil {
+		t.Fatal(err)
+	}
+	if err := <-done; err != nil {
+		t.Fatal(err)
+	}
+	if len(seen) != 1 || len(seen[0]) != 2 || seen[0][0] != ana || seen[0][1] != ben {
+		t.Fatalf("decider saw labellers %v, want one call with [%d %d]", seen, ana, ben)
+	}
+	it, err := f.s.Item(ctx, f.project.ID, id)
+	if err != nil || it.VoteCount != 2 || it.Status != "done" {
+		t.Errorf("item after both votes: count %d status %q, %v; want 2 done", it.VoteCount, it.Status, err)
 	}
 }
