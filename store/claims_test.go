@@ -226,18 +226,7 @@ func TestClaimWhileOwnVoteCommits(t *testing.T) {
 		done <- result{c, err}
 	}()
 	// Let the claim reach the row lock before the vote commits.
-	deadline := time.Now().Add(5 * time.Second)
-	for {
-		var waiting int
-		if err := f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM pg_stat_activity
-			WHERE datname = current_database() AND wait_event_type = 'Lock'`).Scan(&waiting); err != nil {
-			t.Fatal(err)
-		}
-		if waiting > 0 || time.Now().After(deadline) {
-			break
-		}
-		time.Sleep(5 * time.Millisecond)
-	}
+	waitForLockWaiter(t, f.s)
 	if err := tx.Commit(ctx); err != nil {
 		t.Fatal(err)
 	}
@@ -299,5 +288,23 @@ func TestClaimTally(t *testing.T) {
 	}
 	if none.Tally != (store.Tally{}) {
 		t.Errorf("tally not asked for = %+v, want zero", none.Tally)
+	}
+}
+
+// waitForLockWaiter waits (up to 5 s) until a backend of the test database
+// waits on a lock, so a test can release it knowing the waiter is there.
+func waitForLockWaiter(t *testing.T, s *store.Store) {
+	t.Helper()
+	deadline := time.Now().Add(5 * time.Second)
+	for {
+		var waiting int
+		if err := s.Pool().QueryRow(context.Background(), `SELECT count(*) FROM pg_stat_activity
+			WHERE datname = current_database() AND wait_event_type = 'Lock'`).Scan(&waiting); err != nil {
+			t.Fatal(err)
+		}
+		if waiting > 0 || time.Now().After(deadline) {
+			return
+		}
+		time.Sleep(5 * time.Millisecond)
 	}
 }

@@ -256,18 +256,7 @@ func TestVoteSeesVoteCommittedWhileWaiting(t *testing.T) {
 			ItemID: id, LabellerID: ben, LabelID: &glass, Seconds: 2}, decide)
 		done <- err
 	}()
-	deadline := time.Now().Add(5 * time.Second)
-	for {
-		var waiting int
-		if err := f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM pg_stat_activity
-			WHERE datname = current_database() AND wait_event_type = 'Lock'`).Scan(&waiting); err != nil {
-			t.Fatal(err)
-		}
-		if waiting > 0 || time.Now().After(deadline) {
-			break
-		}
-		time.Sleep(5 * time.Millisecond)
-	}
+	waitForLockWaiter(t, f.s)
 	if err := tx.Commit(ctx); err != nil {
 		t.Fatal(err)
 	}
