@@ -132,6 +132,44 @@ func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) 
 // claim in the same round trip.
 func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest, before func(b *pgx.Batch)) (Claim, error) {
 	exclude := slices.Clone(req.Exclude)
+	for range maxClaimRetries {
+		var b pgx.Batch
+		if before != nil {
+			before(&b)
+			before = nil
+		}
+		var r claimRound
+		r.queue(&b, req, exclude)
+		if err := tx.SendBatch(ctx, &b).Close(); err != nil {
+			return Claim{}, err
+		}
+		if !r.found {
+			return Claim{}, ErrNotFound
+		}
+		if r.keep() {
+			return r.c, nil
+		}
+		if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, r.itemID, req.LabellerID); err != nil {
+			return Claim{}, err
+		}
+		exclude = append(exclude, r.itemID)
+	}
+	return Claim{}, ErrNotFound
+}
+
+// claimRound is one claim attempt: claimSQL and its check, queued in a
+// batch, and what they answered.
+type claimRound struct {
+	c            Claim
+	found        bool // an item was claimed
+	itemID       int64
+	how          string
+	needed, live int
+	voted        bool
+}
+
+// queue adds the attempt to b, passing over the items in exclude.
+func (r *claimRound) queue(b *pgx.Batch, req ClaimRequest, exclude []int64) {
 	if exclude == nil {
 		exclude = []int64{}
 	}
@@ -143,38 +181,30 @@ func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest, before func(b *
 	if !req.TallySince.IsZero() {
 		since = &req.TallySince
 	}
-	for range maxClaimRetries {
-		var c Claim
-		var itemID int64
-		var how string
-		var needed, live int
-		var voted bool
-		var b pgx.Batch
-		if before != nil {
-			before(&b)
-			before = nil
+	b.Queue(claimSQL, req.ProjectID, req.LabellerID, exclude, req.Gold, req.GoldSeed, secs).Query(func(rows pgx.Rows) error {
+		if !rows.Next() {
+			return rows.Err()
 		}
-		b.Queue(claimSQL, req.ProjectID, req.LabellerID, exclude, req.Gold, req.GoldSeed, secs).QueryRow(func(row pgx.Row) error {
-			return row.Scan(&itemID, &c.ExpiresAt, &how)
-		})
-		b.Queue(claimCheckSQL, req.ProjectID, req.LabellerID, since).QueryRow(func(row pgx.Row) error {
-			var err error
-			c.Item, err = scanItem(withExtra{Row: row, extra: []any{&needed, &live, &voted, &c.Tally.Votes, &c.Tally.Seconds}})
-			return err
-		})
-		if err := tx.SendBatch(ctx, &b).Close(); err != nil {
-			return Claim{}, err
+		r.found = true
+		return rows.Scan(&r.itemID, &r.c.ExpiresAt, &r.how)
+	})
+	b.Queue(claimCheckSQL, req.ProjectID, req.LabellerID, since).Query(func(rows pgx.Rows) error {
+		if !rows.Next() {
+			return rows.Err()
 		}
-		c.Resumed = how == "resume"
-		if !voted && (how != "open" || live <= needed) {
-			return c, nil
-		}
-		if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, itemID, req.LabellerID); err != nil {
-			return Claim{}, err
-		}
-		exclude = append(exclude, itemID)
-	}
-	return Claim{}, ErrNotFound
+		var err error
+		r.c.Item, err = scanItem(withExtra{Row: rows, extra: []any{&r.needed, &r.live, &r.voted, &r.c.Tally.Votes, &r.c.Tally.Seconds}})
+		return err
+	})
+}
+
+// keep says whether the claim made stands: an item was claimed, the
+// labeller has not voted on it, and (for an open item) no more labellers
+// hold it than it needs votes. With nothing claimed there is nothing to
+// take back either, and r.c is not to be used.
+func (r *claimRound) keep() bool {
+	r.c.Resumed = r.how == "resume"
+	return !r.found || !r.voted && (r.how != "open" || r.live <= r.needed)
 }
 
 // withExtra is a row whose leading columns go to lead and trailing columns

@@ -111,14 +111,7 @@ func TestClaimNeverExceedsVotesNeeded(t *testing.T) {
 func TestClaimRace(t *testing.T) {
 	ctx := context.Background()
 	f := newFixture(t)
-	var labellers []int64
-	for i := range 8 {
-		u, err := f.s.CreateUser(ctx, store.User{Login: fmt.Sprintf("racer%d-%s", i, f.project.Slug), DisplayName: "r", Role: store.RoleLabeller})
-		if err != nil {
-			t.Fatal(err)
-		}
-		labellers = append(labellers, u.ID)
-	}
+	labellers := makeLabellers(t, f, "racer", 8)
 	for round := range 30 {
 		addItems(t, f.s, f.project.ID, 3)
 		var wg sync.WaitGroup
@@ -134,20 +127,7 @@ func TestClaimRace(t *testing.T) {
 			})
 		}
 		wg.Wait()
-		seen := map[int64]int{}
-		for _, id := range got {
-			if id != 0 {
-				seen[id]++
-			}
-		}
-		if len(seen) != 3 {
-			t.Errorf("round %d: %d items claimed, want all 3 (claims %v)", round, len(seen), got)
-		}
-		for id, n := range seen {
-			if n > 1 {
-				t.Fatalf("round %d: item %d claimed by %d labellers, needs 1 vote", round, id, n)
-			}
-		}
+		oneEach(t, round, got, 3)
 		if _, err := f.s.Pool().Exec(ctx, `DELETE FROM claims WHERE project_id = $1`, f.project.ID); err != nil {
 			t.Fatal(err)
 		}
@@ -307,4 +287,100 @@ func waitForLockWaiter(t *testing.T, s *store.Store) {
 		}
 		time.Sleep(5 * time.Millisecond)
 	}
+}
+
+// TestVoteAndClaimRace: labellers vote and claim their next item at once,
+// in one transaction each, when fewer slots are open than labellers ask.
+// No item ends up held by more labellers than it needs votes, and every
+// claim handed back is one the database holds.
+func TestVoteAndClaimRace(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	glass := f.labels["glass"].ID
+	labellers := makeLabellers(t, f, "voter", 8)
+	// Each round: every labeller holds one item of their own to vote on;
+	// after the votes those items are done, and three fresh items with one
+	// slot each are all that is left to claim.
+	done := func(context.Context, store.ItemVotes) (store.ItemUpdate, error) {
+		return store.ItemUpdate{Status: "done"}, nil
+	}
+	for round := range 20 {
+		own := addItems(t, f.s, f.project.ID, len(labellers))
+		for i, l := range labellers {
+			if _, err := f.s.Pool().Exec(ctx, `INSERT INTO claims (item_id, labeller_id, project_id, expires_at)
+				VALUES ($1, $2, $3, now() + interval '1 minute')`, own[i], l, f.project.ID); err != nil {
+				t.Fatal(err)
+			}
+		}
+		if _, err := f.s.Pool().Exec(ctx, `UPDATE items SET status = 'done' WHERE id = ANY($1)`, own); err != nil {
+			t.Fatal(err)
+		}
+		fresh := addItems(t, f.s, f.project.ID, 3)
+		var wg sync.WaitGroup
+		got := make([]int64, len(labellers))
+		for i, l := range labellers {
+			wg.Go(func() {
+				v := store.NewVote{ID: fmt.Sprintf("5c0e0000-6666-4a2b-9c3d-%012d", round*100+i+int(time.Now().UnixNano()%1e6)*1000),
+					ProjectID: f.project.ID, ItemID: own[i], LabellerID: l, LabelID: &glass, Seconds: 1}
+				_, c, err := f.s.RecordVoteAndClaim(ctx, v, done, &store.ClaimRequest{ProjectID: f.project.ID, LabellerID: l, Lifetime: time.Minute})
+				if err != nil {
+					t.Error(err)
+				} else if c != nil {
+					got[i] = c.Item.ID
+				}
+			})
+		}
+		wg.Wait()
+		seen := oneEach(t, round, got, len(fresh))
+		var held int
+		if err := f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM claims WHERE project_id = $1`, f.project.ID).Scan(&held); err != nil {
+			t.Fatal(err)
+		}
+		if held != len(seen) {
+			t.Errorf("round %d: %d claims in the database, %d handed out", round, held, len(seen))
+		}
+		if _, err := f.s.Pool().Exec(ctx, `DELETE FROM claims WHERE project_id = $1`, f.project.ID); err != nil {
+			t.Fatal(err)
+		}
+		if _, err := f.s.Pool().Exec(ctx, `UPDATE items SET status = 'done' WHERE project_id = $1`, f.project.ID); err != nil {
+			t.Fatal(err)
+		}
+	}
+}
+
+// oneEach checks a round of claims on items needing one vote each: want
+// items were handed out (got holds each labeller's item, 0 for none),
+// none to two labellers. It returns how many labellers got each item.
+func oneEach(t *testing.T, round int, got []int64, want int) map[int64]int {
+	t.Helper()
+	seen := map[int64]int{}
+	for _, id := range got {
+		if id != 0 {
+			seen[id]++
+		}
+	}
+	if len(seen) != want {
+		t.Errorf("round %d: %d items claimed, want all %d (claims %v)", round, len(seen), want, got)
+	}
+	for id, n := range seen {
+		if n > 1 {
+			t.Fatalf("round %d: item %d claimed by %d labellers, needs 1 vote", round, id, n)
+		}
+	}
+	return seen
+}
+
+// makeLabellers creates n labeller accounts (not members) named prefix0...
+func makeLabellers(t *testing.T, f *fixture, prefix string, n int) []int64 {
+	t.Helper()
+	var ids []int64
+	for i := range n {
+		u, err := f.s.CreateUser(context.Background(), store.User{Login: fmt.Sprintf("%s%d-%s", prefix, i, f.project.Slug),
+			DisplayName: prefix, Role: store.RoleLabeller})
+		if err != nil {
+			t.Fatal(err)
+		}
+		ids = append(ids, u.ID)
+	}
+	return ids
 }

@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"fmt"
+	"slices"
 	"time"
 
 	"github.com/jackc/pgx/v5"
@@ -56,34 +57,39 @@ func (s *Store) RecordVote(ctx context.Context, v NewVote, decide Decider) (Vote
 // id claims in a transaction of its own. The claim is nil when nothing is
 // left for the labeller.
 //
-// The transaction takes four round trips to the database: BEGIN with the
-// vote, the item's votes (read after the vote locked the item, so a vote
-// committed meanwhile is counted), the item's new state with the claim and
-// its check, and COMMIT.
+// With a claim the transaction takes three round trips to the database:
+// BEGIN with the vote (which also reads the item's votes), then the item's
+// new state, the claim, its check and COMMIT together (see voteClaimCommit);
+// a fourth when a vote on the item committed while this one waited for it.
 func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decider, next *ClaimRequest) (VoteResult, *Claim, error) {
 	var res VoteResult
 	var claim *Claim
-	var row voteRow
-	err := s.inTxBegun(ctx, func(b *pgx.Batch) { row.queue(b, v) }, func(tx pgx.Tx) error {
-		var err error
-		claim = nil
-		res, err = row.result()
-		if err != nil {
-			return err
-		}
-		write, err := finishVote(ctx, tx, v, decide, &res, &row)
-		if err != nil {
-			return err
-		}
-		if next == nil {
+	var err error
+	if next == nil {
+		var row voteRow
+		err = s.inTxBegun(ctx, func(b *pgx.Batch) { row.queue(b, v) }, func(tx pgx.Tx) error {
+			var err error
+			if res, err = row.result(); err != nil {
+				return err
+			}
+			write, err := finishVote(ctx, tx, v, decide, &res, &row)
+			if err != nil {
+				return err
+			}
 			return tx.SendBatch(ctx, write).Close()
+		})
+	} else {
+		for range txAttempts {
+			var retake int64
+			res, claim, retake, err = s.voteClaimCommit(ctx, v, decide, *next)
+			if retake != 0 && err == nil {
+				claim, err = s.retakeClaim(ctx, *next, retake)
+			}
+			if !retryable(err) {
+				break
+			}
 		}
-		// The claim comes last: its FOR UPDATE holds the claimed row to
-		// the commit, and labellers voting on that item wait for it.
-		// (Claiming first measured slower; a separate transaction costs a
-		// second commit.)
-		return claimOrNone(ctx, tx, *next, write, &claim)
-	})
+	}
 	if errors.Is(err, errNotInserted) {
 		res, err = s.repeatedVote(ctx, v)
 		if err == nil && next != nil {
@@ -97,6 +103,74 @@ func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decide
 		return VoteResult{}, nil, fmt.Errorf("vote on item %d by labeller %d: %w", v.ItemID, v.LabellerID, mapErr(err))
 	}
 	return res, claim, nil
+}
+
+// voteClaimCommit stores the vote and claims the next item in one
+// transaction whose COMMIT travels with the item's write, the claim and
+// the claim's check. The claim comes last: its FOR UPDATE holds the claimed
+// row to the commit, and labellers voting on that item wait for it.
+// (Claiming first measured slower; a separate transaction costs a second
+// commit.) When the check finds that the claim, already committed, must
+// not stand (it lost an item's last slot to a race, or the labeller's vote
+// on it committed meanwhile), retake names its item and the caller takes
+// it back and claims again.
+func (s *Store) voteClaimCommit(ctx context.Context, v NewVote, decide Decider, next ClaimRequest) (res VoteResult, claim *Claim, retake int64, err error) {
+	c, err := s.pool.Acquire(ctx)
+	if err != nil {
+		return res, nil, 0, err
+	}
+	defer func() {
+		// Any failure before the COMMIT ran leaves the transaction open.
+		if c.Conn().PgConn().TxStatus() != 'I' {
+			if _, err := c.Exec(context.Background(), "rollback"); err != nil {
+				c.Conn().Close(context.Background())
+			}
+		}
+		c.Release()
+	}()
+	var row voteRow
+	var b pgx.Batch
+	b.Queue("begin")
+	row.queue(&b, v)
+	if err := c.SendBatch(ctx, &b).Close(); err != nil {
+		return res, nil, 0, err
+	}
+	if res, err = row.result(); err != nil {
+		return res, nil, 0, err
+	}
+	write, err := finishVote(ctx, c, v, decide, &res, &row)
+	if err != nil {
+		return res, nil, 0, err
+	}
+	var r claimRound
+	r.queue(write, next, next.Exclude)
+	write.Queue("commit")
+	if err := c.SendBatch(ctx, write).Close(); err != nil {
+		return res, nil, 0, err
+	}
+	switch {
+	case c.Conn().PgConn().TxStatus() != 'I':
+		return res, nil, 0, errors.New("the vote's transaction did not end at its COMMIT")
+	case !r.found:
+		return res, nil, 0, nil
+	case !r.keep():
+		return res, nil, r.itemID, nil
+	}
+	return res, &r.c, 0, nil
+}
+
+// retakeClaim takes back a committed claim on item that must not stand
+// and claims the labeller's next item, passing over that one.
+func (s *Store) retakeClaim(ctx context.Context, next ClaimRequest, item int64) (*Claim, error) {
+	var claim *Claim
+	next.Exclude = append(slices.Clone(next.Exclude), item)
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, item, next.LabellerID); err != nil {
+			return err
+		}
+		return claimOrNone(ctx, tx, next, nil, &claim)
+	})
+	return claim, err
 }
 
 // claimOrNone claims the next item after running the statements in
@@ -180,7 +254,7 @@ func (r *voteRow) queue(b *pgx.Batch, v NewVote) {
 
 // itemVotes returns the item's votes read with the vote, or false when a
 // vote on the item committed meanwhile and they must be read again.
-func (r *voteRow) itemVotes(ctx context.Context, tx pgx.Tx, projectID, itemID int64) (ItemVotes, bool) {
+func (r *voteRow) itemVotes(ctx context.Context, tx querier, projectID, itemID int64) (ItemVotes, bool) {
 	if r.locked == nil || len(r.labels) != *r.locked+1 {
 		return ItemVotes{}, false
 	}
@@ -205,7 +279,7 @@ func (r *voteRow) result() (VoteResult, error) {
 
 // finishVote reads what the stored vote changes and returns, unsent, the
 // statements that write it, so they can share a round trip with the claim.
-func finishVote(ctx context.Context, tx pgx.Tx, v NewVote, decide Decider, res *VoteResult, row *voteRow) (*pgx.Batch, error) {
+func finishVote(ctx context.Context, tx querier, v NewVote, decide Decider, res *VoteResult, row *voteRow) (*pgx.Batch, error) {
 	var b pgx.Batch
 	if res.VotedLabel == nil {
 		// "Can't tell" changes no count and no consensus, but the gold
