@@ -117,7 +117,7 @@ func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) 
 	var c Claim
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		var err error
-		c, err = claimInTx(ctx, tx, req, nil)
+		c, err = claimInTx(ctx, tx, req)
 		return err
 	})
 	if err != nil {
@@ -128,16 +128,11 @@ func (s *Store) ClaimNext(ctx context.Context, req ClaimRequest) (Claim, error) 
 
 // claimInTx claims within tx, whose commit releases the item row lock. A
 // claim that lost the last slot to a race is taken back and the next item
-// tried. before, when not nil, queues statements to run ahead of the first
-// claim in the same round trip.
-func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest, before func(b *pgx.Batch)) (Claim, error) {
+// tried.
+func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest) (Claim, error) {
 	exclude := slices.Clone(req.Exclude)
 	for range maxClaimRetries {
 		var b pgx.Batch
-		if before != nil {
-			before(&b)
-			before = nil
-		}
 		var r claimRound
 		r.queue(&b, req, exclude)
 		if err := tx.SendBatch(ctx, &b).Close(); err != nil {

@@ -93,7 +93,7 @@ func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decide
 	if errors.Is(err, errNotInserted) {
 		res, err = s.repeatedVote(ctx, v)
 		if err == nil && next != nil {
-			err = s.inTx(ctx, func(tx pgx.Tx) error { return claimOrNone(ctx, tx, *next, nil, &claim) })
+			err = s.inTx(ctx, func(tx pgx.Tx) error { return claimOrNone(ctx, tx, *next, &claim) })
 		}
 	}
 	if err != nil {
@@ -168,20 +168,16 @@ func (s *Store) retakeClaim(ctx context.Context, next ClaimRequest, item int64) 
 		if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, item, next.LabellerID); err != nil {
 			return err
 		}
-		return claimOrNone(ctx, tx, next, nil, &claim)
+		return claimOrNone(ctx, tx, next, &claim)
 	})
 	return claim, err
 }
 
-// claimOrNone claims the next item after running the statements in
-// before (nil: none), in the same round trip as the claim.
-func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, before *pgx.Batch, out **Claim) error {
-	var queue func(b *pgx.Batch)
-	if before != nil {
-		queue = func(b *pgx.Batch) { b.QueuedQueries = append(b.QueuedQueries, before.QueuedQueries...) }
-	}
-	c, err := claimInTx(ctx, tx, req, queue)
-	if errors.Is(err, ErrNotFound) || errors.Is(err, pgx.ErrNoRows) {
+// claimOrNone claims the next item in tx into out, leaving out nil when
+// nothing is left for the labeller.
+func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, out **Claim) error {
+	c, err := claimInTx(ctx, tx, req)
+	if errors.Is(err, ErrNotFound) {
 		return nil
 	}
 	if err != nil {
