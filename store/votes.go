@@ -79,15 +79,16 @@ func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decide
 			return tx.SendBatch(ctx, write).Close()
 		})
 	} else {
+		var retake int64
 		for range txAttempts {
-			var retake int64
-			res, claim, retake, err = s.voteClaimCommit(ctx, v, decide, *next)
-			if retake != 0 && err == nil {
-				claim, err = s.retakeClaim(ctx, *next, retake)
-			}
-			if !retryable(err) {
+			if res, claim, retake, err = s.voteClaimCommit(ctx, v, decide, *next); !retryable(err) {
 				break
 			}
+		}
+		// The vote is committed by now: a failure to claim again must not
+		// send it round the loop, where it would come back as a repeat.
+		if retake != 0 && err == nil {
+			claim, err = s.retakeClaim(ctx, *next, retake)
 		}
 	}
 	if errors.Is(err, errNotInserted) {
