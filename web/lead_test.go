@@ -272,3 +272,28 @@ func (e *testEnv) labelIDs(p store.Project) map[string]int64 {
 	}
 	return out
 }
+
+// TestLabellerPageLargeTaxonomy: with more labels than a labeller's
+// matrix is kept for, the labeller page says so instead of promising one
+// at the next fit.
+func TestLabellerPageLargeTaxonomy(t *testing.T) {
+	e := newTestEnv(t)
+	var in []store.LabelInput
+	for i := range maxModelClasses + 6 {
+		in = append(in, store.LabelInput{Key: fmt.Sprintf("part-%02d", i), Parent: -1})
+	}
+	p, err := e.store.CreateProjectWithTaxonomy(context.Background(), store.Project{Slug: uniq("wide"), Name: "Wide line"}, in)
+	if err != nil {
+		t.Fatal(err)
+	}
+	u := e.member(p)
+	c := e.login(e.user(store.RoleLead))
+	doc := page(t, c.get("/lead/p/"+p.Slug+"/labellers/"+i64(u.ID)), http.StatusOK)
+	text := doc.Find("main").Text()
+	if want := fmt.Sprintf("this project has %d labels", maxModelClasses+6); !strings.Contains(text, want) {
+		t.Errorf("labeller page lacks %q", want)
+	}
+	if strings.Contains(text, "at its next fit") {
+		t.Error("labeller page promises a matrix the engine will not keep")
+	}
+}
