@@ -144,13 +144,17 @@ func claimInTx(ctx context.Context, tx pgx.Tx, req ClaimRequest) (Claim, error) 
 		if r.keep() {
 			return r.c, nil
 		}
-		if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, r.itemID, req.LabellerID); err != nil {
+		if _, err := tx.Exec(ctx, dropClaimSQL, r.itemID, req.LabellerID); err != nil {
 			return Claim{}, err
 		}
 		exclude = append(exclude, r.itemID)
 	}
 	return Claim{}, ErrNotFound
 }
+
+// dropClaimSQL takes back labeller $2's claim on item $1, one that must
+// not stand.
+const dropClaimSQL = `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`
 
 // claimRound is one claim attempt: claimSQL and its check, queued in a
 // batch, and what they answered.
@@ -181,7 +185,9 @@ func (r *claimRound) queue(b *pgx.Batch, req ClaimRequest, exclude []int64) {
 			return rows.Err()
 		}
 		r.found = true
-		return rows.Scan(&r.itemID, &r.c.ExpiresAt, &r.how)
+		err := rows.Scan(&r.itemID, &r.c.ExpiresAt, &r.how)
+		r.c.Resumed = r.how == "resume"
+		return err
 	})
 	b.Queue(claimCheckSQL, req.ProjectID, req.LabellerID, since).Query(func(rows pgx.Rows) error {
 		if !rows.Next() {
@@ -198,7 +204,6 @@ func (r *claimRound) queue(b *pgx.Batch, req ClaimRequest, exclude []int64) {
 // hold it than it needs votes. With nothing claimed there is nothing to
 // take back either, and r.c is not to be used.
 func (r *claimRound) keep() bool {
-	r.c.Resumed = r.how == "resume"
 	return !r.found || !r.voted && (r.how != "open" || r.live <= r.needed)
 }
 

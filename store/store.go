@@ -125,34 +125,6 @@ func (s *Store) tryTx(ctx context.Context, fn func(tx pgx.Tx) error) error {
 	return tx.Commit(ctx)
 }
 
-// inTxBegun is inTx with BEGIN sent in one round trip with the statements
-// start queues; fn runs once their answers are in.
-func (s *Store) inTxBegun(ctx context.Context, start func(b *pgx.Batch), fn func(tx pgx.Tx) error) error {
-	var err error
-	for range txAttempts {
-		if err = s.tryTxBegun(ctx, start, fn); !retryable(err) {
-			return err
-		}
-	}
-	return err
-}
-
-func (s *Store) tryTxBegun(ctx context.Context, start func(b *pgx.Batch), fn func(tx pgx.Tx) error) error {
-	var b pgx.Batch
-	b.BeginTx(pgx.TxOptions{})
-	start(&b)
-	br := s.pool.SendBatch(ctx, &b)
-	tx := br.Tx()
-	defer tx.Rollback(context.Background())
-	if err := br.Close(); err != nil {
-		return err
-	}
-	if err := fn(tx); err != nil {
-		return err
-	}
-	return tx.Commit(ctx)
-}
-
 // retryable reports a deadlock (40P01) or serialization failure (40001).
 func retryable(err error) bool {
 	var pgErr *pgconn.PgError

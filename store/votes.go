@@ -57,39 +57,24 @@ func (s *Store) RecordVote(ctx context.Context, v NewVote, decide Decider) (Vote
 // id claims in a transaction of its own. The claim is nil when nothing is
 // left for the labeller.
 //
-// With a claim the transaction takes three round trips to the database:
-// BEGIN with the vote (which also reads the item's votes), then the item's
-// new state, the claim, its check and COMMIT together (see voteClaimCommit);
-// a fourth when a vote on the item committed while this one waited for it.
+// The transaction takes two round trips to the database: BEGIN with the
+// vote (which also reads the item's votes), then the item's new state, the
+// claim with its check, and COMMIT together (see voteAndCommit); a third
+// when a vote on the item committed while this one waited for it.
 func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decider, next *ClaimRequest) (VoteResult, *Claim, error) {
 	var res VoteResult
 	var claim *Claim
+	var retake int64
 	var err error
-	if next == nil {
-		var row voteRow
-		err = s.inTxBegun(ctx, func(b *pgx.Batch) { row.queue(b, v) }, func(tx pgx.Tx) error {
-			var err error
-			if res, err = row.result(); err != nil {
-				return err
-			}
-			write, err := finishVote(ctx, tx, v, decide, &res, &row)
-			if err != nil {
-				return err
-			}
-			return tx.SendBatch(ctx, write).Close()
-		})
-	} else {
-		var retake int64
-		for range txAttempts {
-			if res, claim, retake, err = s.voteClaimCommit(ctx, v, decide, *next); !retryable(err) {
-				break
-			}
+	for range txAttempts {
+		if res, claim, retake, err = s.voteAndCommit(ctx, v, decide, next); !retryable(err) {
+			break
 		}
-		// The vote is committed by now: a failure to claim again must not
-		// send it round the loop, where it would come back as a repeat.
-		if retake != 0 && err == nil {
-			claim, err = s.retakeClaim(ctx, *next, retake)
-		}
+	}
+	// The vote is committed by now: a failure to claim again must not
+	// send it round the loop, where it would come back as a repeat.
+	if retake != 0 && err == nil {
+		claim, err = s.retakeClaim(ctx, *next, retake)
 	}
 	if errors.Is(err, errNotInserted) {
 		res, err = s.repeatedVote(ctx, v)
@@ -106,16 +91,16 @@ func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decide
 	return res, claim, nil
 }
 
-// voteClaimCommit stores the vote and claims the next item in one
-// transaction whose COMMIT travels with the item's write, the claim and
-// the claim's check. The claim comes last: its FOR UPDATE holds the claimed
+// voteAndCommit stores the vote and, when next is not nil, claims the
+// next item, in one transaction whose COMMIT travels with the item's write
+// and the claim with its check. The claim comes last: its FOR UPDATE holds the claimed
 // row to the commit, and labellers voting on that item wait for it.
 // (Claiming first measured slower; a separate transaction costs a second
 // commit.) When the check finds that the claim, already committed, must
 // not stand (it lost an item's last slot to a race, or the labeller's vote
 // on it committed meanwhile), retake names its item and the caller takes
 // it back and claims again.
-func (s *Store) voteClaimCommit(ctx context.Context, v NewVote, decide Decider, next ClaimRequest) (res VoteResult, claim *Claim, retake int64, err error) {
+func (s *Store) voteAndCommit(ctx context.Context, v NewVote, decide Decider, next *ClaimRequest) (res VoteResult, claim *Claim, retake int64, err error) {
 	c, err := s.pool.Acquire(ctx)
 	if err != nil {
 		return res, nil, 0, err
@@ -144,7 +129,9 @@ func (s *Store) voteClaimCommit(ctx context.Context, v NewVote, decide Decider, 
 		return res, nil, 0, err
 	}
 	var r claimRound
-	r.queue(write, next, next.Exclude)
+	if next != nil {
+		r.queue(write, *next, next.Exclude)
+	}
 	write.Queue("commit")
 	if err := c.SendBatch(ctx, write).Close(); err != nil {
 		return res, nil, 0, err
@@ -152,7 +139,7 @@ func (s *Store) voteClaimCommit(ctx context.Context, v NewVote, decide Decider, 
 	switch {
 	case c.Conn().PgConn().TxStatus() != 'I':
 		return res, nil, 0, errors.New("the vote's transaction did not end at its COMMIT")
-	case !r.found:
+	case !r.found: // nothing claimed, or nothing asked for
 		return res, nil, 0, nil
 	case !r.keep():
 		return res, nil, r.itemID, nil
@@ -166,7 +153,7 @@ func (s *Store) retakeClaim(ctx context.Context, next ClaimRequest, item int64) 
 	var claim *Claim
 	next.Exclude = append(slices.Clone(next.Exclude), item)
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
-		if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, item, next.LabellerID); err != nil {
+		if _, err := tx.Exec(ctx, dropClaimSQL, item, next.LabellerID); err != nil {
 			return err
 		}
 		return claimOrNone(ctx, tx, next, &claim)
@@ -324,22 +311,16 @@ var errNotInserted = errors.New("vote not inserted")
 // updateItem changes the item's vote count by delta and recomputes its
 // state through decide, unless it is a gold item, whose answer is fixed.
 func updateItem(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide Decider, gold **int64, delta int) error {
-	sql, args, err := itemWrite(ctx, tx, projectID, itemID, decide, gold, delta)
+	iv, err := itemVotes(ctx, tx, projectID, itemID)
+	if err != nil {
+		return err
+	}
+	sql, args, err := itemDecision(ctx, projectID, itemID, iv, decide, gold, delta)
 	if err != nil {
 		return err
 	}
 	_, err = tx.Exec(ctx, sql, args...)
 	return err
-}
-
-// itemWrite reads the item's votes, decides its new state and returns the
-// statement that writes it.
-func itemWrite(ctx context.Context, tx pgx.Tx, projectID, itemID int64, decide Decider, gold **int64, delta int) (string, []any, error) {
-	iv, err := itemVotes(ctx, tx, projectID, itemID)
-	if err != nil {
-		return "", nil, err
-	}
-	return itemDecision(ctx, projectID, itemID, iv, decide, gold, delta)
 }
 
 // itemDecision decides the item's new state from its votes and returns
