@@ -28,9 +28,12 @@ type ReliabilityOptions struct {
 	// MinVotes: labellers with fewer votes get no flags; a handful of
 	// votes cannot tell skill from luck. Default 20.
 	MinVotes int
-	// Z is the normal quantile of the Wilson interval. Default 1.959964 (95%).
+	// Z is the normal quantile of the Wilson interval. Default Z95.
 	Z float64
 }
+
+// Z95 is the two-sided 95% quantile of the standard normal distribution.
+const Z95 = 1.959964
 
 func (o ReliabilityOptions) withDefaults() ReliabilityOptions {
 	def := func(x *float64, d float64) {
@@ -43,7 +46,7 @@ func (o ReliabilityOptions) withDefaults() ReliabilityOptions {
 	def(&o.KappaNearZero, 0.1)
 	def(&o.OveruseRatio, 2)
 	def(&o.OveruseMinShare, 0.5)
-	def(&o.Z, 1.959964)
+	def(&o.Z, Z95)
 	if o.MinVotes == 0 {
 		o.MinVotes = 20
 	}

@@ -365,7 +365,7 @@ func pauseReason(r agreement.LabellerReport, mark store.GoldMark, floor float64,
 	lo, hi := r.GoldLo, r.GoldHi
 	since := ""
 	if mark.Total > 0 {
-		lo, hi = agreement.WilsonInterval(right, seen, 1.959964) // the 95% normal quantile, as the fit uses
+		lo, hi = agreement.WilsonInterval(right, seen, agreement.Z95) // as the fit's figures
 		since = " since your lead last set your status"
 	}
 	if !(hi < floor) {

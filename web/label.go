@@ -16,8 +16,9 @@ import (
 // undoWindow is how long after a vote its labeller may take it back.
 const undoWindow = 10 * time.Second
 
-// maxHeld bounds the items a client may say it holds (its queue and its
-// the items it recently voted on or skipped), so a request cannot make the claim query arbitrarily slow.
+// maxHeld bounds the items a client may say it holds (its queue and the
+// items it recently voted on or skipped), so a request cannot make the
+// claim query arbitrarily slow.
 const maxHeld = 50
 
 // itemJSON is all a labeller learns about an item: never its status,
@@ -95,27 +96,37 @@ func (s *Server) today() time.Time {
 	return time.Date(y, m, d, 0, 0, 0, 0, now.Location())
 }
 
-// claimFor claims the next item, with the labeller's tally when withTally
-// (else the tally is nil).
+// claimFor claims the next item (nil when none is left), with the
+// labeller's tally when withTally (else the tally is nil).
 func (s *Server) claimFor(r *http.Request, p *store.Project, exclude []int64, withTally bool) (*itemJSON, *store.Tally, error) {
 	c, err := s.store.ClaimNext(r.Context(), s.claimRequest(r, p, exclude, withTally))
-	switch {
-	case errors.Is(err, store.ErrNotFound) && withTally:
-		t, err := s.tally(r, p)
+	if errors.Is(err, store.ErrNotFound) {
+		t, err := s.tallyAfter(r, p, nil, withTally)
 		return nil, t, err
-	case errors.Is(err, store.ErrNotFound):
-		return nil, nil, nil
-	case err != nil:
-		return nil, nil, err
-	case withTally:
-		return itemView(p, c.Item), &c.Tally, nil
 	}
-	return itemView(p, c.Item), nil, nil
+	if err != nil {
+		return nil, nil, err
+	}
+	t, err := s.tallyAfter(r, p, &c, withTally)
+	return itemView(p, c.Item), t, err
 }
 
 func (s *Server) tally(r *http.Request, p *store.Project) (*store.Tally, error) {
 	t, err := s.store.VoteTally(r.Context(), p.ID, userFrom(r.Context()).ID, s.today())
 	return &t, err
+}
+
+// tallyAfter is the labeller's tally to answer with, nil when not asked
+// for: the one claim c (asked with a tally) read, or a count of its own
+// when nothing was claimed.
+func (s *Server) tallyAfter(r *http.Request, p *store.Project, c *store.Claim, asked bool) (*store.Tally, error) {
+	switch {
+	case !asked:
+		return nil, nil
+	case c != nil:
+		return &c.Tally, nil
+	}
+	return s.tally(r, p)
 }
 
 // decodeJSON reads a small JSON body into v, or says what is wrong.
@@ -217,16 +228,11 @@ func (s *Server) createVote(w http.ResponseWriter, r *http.Request) error {
 			return err
 		}
 	}
-	switch {
-	case claim != nil:
+	if claim != nil {
 		out.Next = itemView(p, claim.Item)
-		if req.Tally {
-			out.Tally = &claim.Tally
-		}
-	case req.Tally:
-		if out.Tally, err = s.tally(r, p); err != nil {
-			return err
-		}
+	}
+	if out.Tally, err = s.tallyAfter(r, p, claim, req.Tally); err != nil {
+		return err
 	}
 	return writeJSON(w, http.StatusOK, out)
 }
