@@ -107,15 +107,16 @@
   }
 
   // ---- items: a queue of claimed items, the first one on screen ----
-  // seen holds items voted on or skipped here: an answer to a request sent
-  // before that happened may still offer them, and they must not return.
-  // done lists the latest of them, sent with each request so the server
-  // passes over them too.
-  var queue = [], shownAt = 0, done = [], busy = false, seen = {}, stale = 0;
+  // done lists the latest items voted on or skipped here: an answer to a
+  // request sent before that happened may still offer them, and they must
+  // not return. Each request sends them, so the server passes over them
+  // too; a skipped item may come back once it has left the list.
+  var queue = [], shownAt = 0, done = [], busy = false, stale = 0;
   function held() {
-    return queue.map(function (it) { return it.id; }).concat(done.slice(-40));
+    return queue.map(function (it) { return it.id; }).concat(done);
   }
-  function dealt(id) { seen[id] = true; done.push(id); }
+  function dealt(id) { done.push(id); if (done.length > 40) done.shift(); }
+  function dealtWith(id) { return done.indexOf(id) >= 0; }
   function preload(it) { var i = new Image(); i.src = it.image; it.pre = i; }
   function show() {
     var it = queue[0];
@@ -133,7 +134,7 @@
     reset();
   }
   function add(it) {
-    if (!it || seen[it.id] || queue.some(function (q) { return q.id === it.id; })) return;
+    if (!it || dealtWith(it.id) || queue.some(function (q) { return q.id === it.id; })) return;
     preload(it);
     queue.push(it);
     if (queue.length === 1) show();
@@ -211,7 +212,7 @@
       // An answer to a request sent before a skip or vote may offer an item
       // already dealt with; add drops it, so ask again with the new list,
       // a few times and more slowly each time, never in a tight loop.
-      if (j.next && seen[j.next.id] && stale < 5) {
+      if (j.next && dealtWith(j.next.id) && stale < 5) {
         stale++;
         return new Promise(function (ok) { setTimeout(ok, 100 * stale); }).then(fill);
       }
@@ -271,7 +272,6 @@
       // an unknown amount until the next quiet exchange.
       tally(j.tally, ended(), -1, -(j.item && voteSecs[j.item.id] || 0));
       if (!j.item) return;
-      delete seen[j.item.id];
       done = done.filter(function (id) { return id !== j.item.id; });
       queue = queue.filter(function (q) { return q.id !== j.item.id; });
       preload(j.item);
