@@ -59,10 +59,18 @@ func newBrowser(t *testing.T, e *testEnv, u store.User) *browser {
 func (b *browser) step(what string, actions ...chromedp.Action[chromedp.Void]) {
 	b.t.Helper()
 	if err := chromedp.Do(b.ctx, actions...); err != nil {
-		status, _ := chromedp.Run(b.ctx, chromedp.Evaluate[string](`document.getElementById("lab-status").textContent + " | votes " + document.getElementById("lab-votes").textContent + " | path " + document.getElementById("lab-path").textContent + " | image " + JSON.stringify({hidden: document.getElementById("lab-image").hidden, complete: document.getElementById("lab-image").complete, width: document.getElementById("lab-image").naturalWidth, src: document.getElementById("lab-image").getAttribute("src"), empty: !document.getElementById("lab-empty").hidden})`))
+		status, _ := chromedp.Run(b.ctx, chromedp.Evaluate[string](screenState))
 		b.t.Fatalf("%s: %v (screen says %q)", what, err, status)
 	}
 }
+
+// screenState is what a failing step reports of the labelling screen.
+const screenState = `(function () {
+	var $ = function (id) { return document.getElementById(id); }, img = $("lab-image");
+	return $("lab-status").textContent + " | votes " + $("lab-votes").textContent + " | path " + $("lab-path").textContent +
+		" | image " + JSON.stringify({hidden: img.hidden, complete: img.complete, width: img.naturalWidth,
+			src: img.getAttribute("src"), empty: !$("lab-empty").hidden});
+})()`
 
 // poll waits until a JavaScript expression is true.
 func poll(expr string) chromedp.Action[chromedp.Void] {
