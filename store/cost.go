@@ -40,9 +40,7 @@ func (s *Store) WorkByLabeller(ctx context.Context, projectID int64) ([]Labeller
 			return err
 		}
 		var w LabellerWork
-		u := &w.User
-		_, err = pgx.ForEachRow(rows, []any{&u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt,
-			&w.Votes, &w.Labelled, &w.Seconds}, func() error {
+		_, err = pgx.ForEachRow(rows, append(w.User.dest(), &w.Votes, &w.Labelled, &w.Seconds), func() error {
 			out = append(out, w)
 			return nil
 		})

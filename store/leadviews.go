@@ -186,10 +186,9 @@ var userCols = prefixed("u", userColumns)
 
 func scanLabellerRow(row pgx.Row) (LabellerRow, error) {
 	var r LabellerRow
-	u := &r.User
-	err := row.Scan(&u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt,
+	err := row.Scan(append(r.User.dest(),
 		&r.Member, &r.Status, &r.StatusReason, &r.Votes, &r.MedianSeconds, &r.Accuracy, &r.GoldCorrect,
-		&r.GoldTotal, &r.GoldLow, &r.GoldHigh, &r.Agreement, &r.Flags, &r.StatsAt)
+		&r.GoldTotal, &r.GoldLow, &r.GoldHigh, &r.Agreement, &r.Flags, &r.StatsAt)...)
 	return r, err
 }
 
@@ -291,10 +290,9 @@ func (s *Store) queryVotes(ctx context.Context, sql string, args ...any) ([]Vote
 	var out []VoteView
 	for rows.Next() {
 		var v VoteView
-		u := &v.Labeller
-		if err := rows.Scan(&v.ID, &v.ItemID, &u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status,
-			&u.CreatedAt, &v.LabelID, &v.LabelKey, &v.LabelName, &v.Seconds, &v.CreatedAt, &v.Accuracy,
-			&v.Agreement, &v.ConsensusKey); err != nil {
+		dest := append(append([]any{&v.ID, &v.ItemID}, v.Labeller.dest()...), &v.LabelID, &v.LabelKey, &v.LabelName,
+			&v.Seconds, &v.CreatedAt, &v.Accuracy, &v.Agreement, &v.ConsensusKey)
+		if err := rows.Scan(dest...); err != nil {
 			return nil, fmt.Errorf("votes: %w", err)
 		}
 		out = append(out, v)

@@ -48,12 +48,11 @@ func (s *Store) SetMemberStatus(ctx context.Context, projectID, userID int64, st
 // MemberOf returns a user's membership of a project, ErrNotFound if none.
 func (s *Store) MemberOf(ctx context.Context, projectID, userID int64) (Member, error) {
 	m := Member{ProjectID: projectID}
-	u := &m.User
 	err := s.pool.QueryRow(ctx, `
 		SELECT m.status, m.status_reason, m.joined_at, `+prefixed("u", userColumns)+`
 		FROM project_members m JOIN users u ON u.id = m.user_id
 		WHERE m.project_id = $1 AND m.user_id = $2`, projectID, userID).
-		Scan(&m.Status, &m.StatusReason, &m.JoinedAt, &u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt)
+		Scan(append([]any{&m.Status, &m.StatusReason, &m.JoinedAt}, m.User.dest()...)...)
 	if err != nil {
 		return Member{}, fmt.Errorf("membership of user %d in project %d: %w", userID, projectID, mapErr(err))
 	}
@@ -73,8 +72,7 @@ func (s *Store) Members(ctx context.Context, projectID int64) ([]Member, error) 
 	var out []Member
 	for rows.Next() {
 		m := Member{ProjectID: projectID}
-		u := &m.User
-		if err := rows.Scan(&m.Status, &m.StatusReason, &m.JoinedAt, &u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt); err != nil {
+		if err := rows.Scan(append([]any{&m.Status, &m.StatusReason, &m.JoinedAt}, m.User.dest()...)...); err != nil {
 			return nil, fmt.Errorf("members of project %d: %w", projectID, err)
 		}
 		out = append(out, m)

@@ -62,7 +62,7 @@ func (s *Store) SessionProjectAccess(ctx context.Context, idHash []byte, slug st
 			JOIN projects p ON p.slug = $2
 			LEFT JOIN project_members m ON m.project_id = p.id AND m.user_id = u.id
 			WHERE s.id_hash = $1 AND s.expires_at > now() AND u.status = 'active'`, idHash, slug),
-		lead:  []any{&u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt},
+		lead:  u.dest(),
 		extra: []any{&memberStatus, &memberReason, &joined},
 	})
 	if errors.Is(err, pgx.ErrNoRows) {

@@ -31,8 +31,14 @@ const userColumns = `id, login, display_name, role, password_hash, status, creat
 
 func scanUser(row interface{ Scan(...any) error }) (User, error) {
 	var u User
-	err := row.Scan(&u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt)
+	err := row.Scan(u.dest()...)
 	return u, err
+}
+
+// dest lists u's fields in userColumns order, for a scan of a row that
+// holds a user among other columns.
+func (u *User) dest() []any {
+	return []any{&u.ID, &u.Login, &u.DisplayName, &u.Role, &u.PasswordHash, &u.Status, &u.CreatedAt}
 }
 
 // CreateUser adds a user; the login must be unused (else ErrConflict).
