@@ -197,3 +197,23 @@ func TestBrowserDrillDown(t *testing.T) {
 		t.Errorf("votes in the database (-want +got):\n%s", diff)
 	}
 }
+
+// TestBrowserNothingLeft: once the labeller has voted on every item, the
+// screen shows its message and no image, not a broken one.
+func TestBrowserNothingLeft(t *testing.T) {
+	e := newTestEnv(t)
+	p := e.project()
+	e.drawnItems(p, 1)
+	u := e.member(p)
+	b := newBrowser(t, e, u)
+	b.step("open the labelling screen", chromedp.Navigate(e.ts.URL+"/p/"+p.Slug+"/label"), imageShown)
+	b.step("vote glass with 3, the last item", chromedp.KeyEvent("3"), poll(`!document.getElementById("lab-empty").hidden`))
+	shown, err := chromedp.Run(b.ctx, chromedp.Evaluate[string](`getComputedStyle(document.getElementById("lab-image")).display + " " +
+		getComputedStyle(document.getElementById("lab-empty")).display`))
+	if err != nil {
+		t.Fatal(err)
+	}
+	if shown != "none block" {
+		t.Errorf("image and message display as %q, want \"none block\"", shown)
+	}
+}
