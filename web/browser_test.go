@@ -116,16 +116,24 @@ func votedKeys(t *testing.T, e *testEnv, p store.Project, u store.User) (keys []
 	return keys, seconds
 }
 
+// openLabelling makes a project of n drawn items and a member, and opens
+// the labelling screen as that member in a browser.
+func openLabelling(t *testing.T, n int) (*testEnv, store.Project, store.User, *browser) {
+	t.Helper()
+	e := newTestEnv(t)
+	p := e.project()
+	e.drawnItems(p, n)
+	u := e.member(p)
+	b := newBrowser(t, e, u)
+	b.step("open the labelling screen", chromedp.Navigate(e.ts.URL+"/p/"+p.Slug+"/label"), imageShown)
+	return e, p, u, b
+}
+
 // TestBrowserLabelling drives headless Chromium: a labeller logs in and
 // labels by keyboard alone (choose, can't tell, skip, undo, search), and the
 // votes are then read back from the database.
 func TestBrowserLabelling(t *testing.T) {
-	e := newTestEnv(t)
-	p := e.project()
-	e.drawnItems(p, 10)
-	u := e.member(p)
-	b := newBrowser(t, e, u)
-	b.step("open the labelling screen", chromedp.Navigate(e.ts.URL+"/p/"+p.Slug+"/label"), imageShown)
+	e, p, u, b := openLabelling(t, 10)
 	// Three leaves fit on one level: 1 PET bottle, 2 Plastic film, 3 glass.
 	b.step("vote glass with 3", chromedp.KeyEvent("3"), waitVotes(1), imageShown)
 	b.step("vote PET bottle with 1", chromedp.KeyEvent("1"), waitVotes(2), imageShown)
@@ -201,12 +209,7 @@ func TestBrowserDrillDown(t *testing.T) {
 // TestBrowserNothingLeft: once the labeller has voted on every item, the
 // screen shows its message and no image, not a broken one.
 func TestBrowserNothingLeft(t *testing.T) {
-	e := newTestEnv(t)
-	p := e.project()
-	e.drawnItems(p, 1)
-	u := e.member(p)
-	b := newBrowser(t, e, u)
-	b.step("open the labelling screen", chromedp.Navigate(e.ts.URL+"/p/"+p.Slug+"/label"), imageShown)
+	_, _, _, b := openLabelling(t, 1)
 	b.step("vote glass with 3, the last item", chromedp.KeyEvent("3"), poll(`!document.getElementById("lab-empty").hidden`))
 	shown, err := chromedp.Run(b.ctx, chromedp.Evaluate[string](`getComputedStyle(document.getElementById("lab-image")).display + " " +
 		getComputedStyle(document.getElementById("lab-empty")).display`))
