@@ -338,3 +338,140 @@ func TestDawidSkeneWorkersDeterministic(t *testing.T) {
 		}
 	}
 }
+
+// Gold must take part in EM, not be pasted over the answer afterwards: it is
+// what teaches the fit what a labeller's votes mean. Two experienced sorters
+// and a new one see 20 items together, 10 glass (class 0) and 10 PET bottle
+// (class 1), and all three vote right. The new sorter alone sees 7 more and
+// calls them all PET; gold says the first 6 of those are glass. Item 26 is
+// the seventh. a = 0.1 is the smoothing, q item 26's posterior of glass, S
+// the summed posterior of glass over her 7 items of her own.
+//
+// Without gold her glass row is (S+a)/(10+S+2a) for PET; the glass prior is
+// (10+S+a)/(27+2a), PET's (17-S+a)/(27+2a), and her P(PET | PET) is about
+// 1. EM starts at S = 0 and climbs to the first fixed point S = 7q: with
+// q <= 0.02 the odds of glass are at most (10.24/16.86)*(0.24/10.34) =
+// 0.014, so q stays below 0.02 and her P(PET | glass) below 0.24/10.2.
+//
+// With gold S = 6+q, so P(PET | glass) >= 6.1/16.2 = 0.377, and the odds of
+// glass are at least (16.1/11.1)*(6.1/16.2) = 0.546: q >= 0.35.
+func TestDawidSkeneFixedItemsAnchorTheFit(t *testing.T) {
+	const glass, pet, newSorter, target = 0, 1, 2, 26
+	v := &Votes{NumItems: 27, NumLabellers: 3, NumClasses: 2}
+	vote := func(item, l, c int) {
+		v.Item, v.Labeller, v.Label = append(v.Item, int32(item)), append(v.Labeller, int32(l)), append(v.Label, int32(c))
+	}
+	for item := range 20 {
+		for l := range 3 {
+			vote(item, l, item%2)
+		}
+	}
+	fixed := map[int]int{}
+	for item := 20; item < 27; item++ {
+		vote(item, newSorter, pet)
+		if item != target {
+			fixed[item] = glass
+		}
+	}
+	free, err := DawidSkene(v, DawidSkeneOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	held, err := DawidSkene(v, DawidSkeneOptions{Fixed: fixed})
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Logf("P(vote PET | glass) %.4f -> %.4f; item %d P(glass) %.4f -> %.4f",
+		free.ConfusionOf(newSorter)[glass*2+pet], held.ConfusionOf(newSorter)[glass*2+pet], target, free.PosteriorOf(target)[glass], held.PosteriorOf(target)[glass])
+	if got := free.ConfusionOf(newSorter)[glass*2+pet]; got > 0.24/10.2 {
+		t.Errorf("without gold: P(vote PET | glass) = %.4f, want below 0.24/10.2 = 0.0235", got)
+	}
+	if got := free.PosteriorOf(target)[glass]; got > 0.02 {
+		t.Errorf("without gold: item %d P(glass) = %.4f, want below 0.02", target, got)
+	}
+	if got := held.ConfusionOf(newSorter)[glass*2+pet]; got < 6.1/16.2 {
+		t.Errorf("gold held: P(vote PET | glass) = %.4f, want at least 6.1/16.2 = 0.377", got)
+	}
+	if got := held.PosteriorOf(target)[glass]; got < 0.35 {
+		t.Errorf("gold held: item %d P(glass) = %.4f, want at least 0.35", target, got)
+	}
+	for item := range fixed {
+		if held.Label[item] != glass || held.Confidence[item] != 1 {
+			t.Errorf("gold item %d: label %d confidence %v, want glass and 1", item, held.Label[item], held.Confidence[item])
+		}
+	}
+}
+
+// Smoothing keeps a labeller with one vote from getting zero cells: with
+// counts only in her voted column j, a row t she may have seen is
+// (q_t+a)/(q_t+K*a) at j and a/(q_t+K*a) elsewhere (q_t <= 1 her item's
+// posterior of t), so every cell is at least a/(1+K*a); unseen rows are
+// a/(K*a) = 1/K. Without smoothing the seen rows are one-hot at j.
+func TestDawidSkeneSmoothingOneVote(t *testing.T) {
+	const k = 3
+	// Four labellers agree on twelve items, four per class; labeller 4
+	// votes once, class 2 on item 0 (class 0 by the others).
+	v := &Votes{NumItems: 12, NumLabellers: 5, NumClasses: k}
+	for item := range 12 {
+		for l := range 4 {
+			v.Item = append(v.Item, int32(item))
+			v.Labeller = append(v.Labeller, int32(l))
+			v.Label = append(v.Label, int32(item%k))
+		}
+	}
+	v.Item, v.Labeller, v.Label = append(v.Item, 0), append(v.Labeller, 4), append(v.Label, 2)
+
+	res, err := DawidSkene(v, DawidSkeneOptions{})
+	if err != nil {
+		t.Fatal(err)
+	}
+	a := float64(DefaultSmoothing)
+	floor := a / (1 + k*a)
+	m := res.ConfusionOf(4)
+	for tc := range k {
+		row := m[tc*k : (tc+1)*k]
+		for j, x := range row {
+			if !(x > 0 && x >= floor-1e-12) {
+				t.Errorf("smoothed: true %d vote %d = %g, want at least a/(1+K*a) = %g", tc, j, x, floor)
+			}
+		}
+		if top := row[argmax(row)]; top >= 1-floor {
+			t.Errorf("smoothed: row %d %v is one-hot", tc, row)
+		}
+	}
+
+	raw, err := DawidSkene(v, DawidSkeneOptions{NoSmoothing: true})
+	if err != nil {
+		t.Fatal(err)
+	}
+	// Item 0 is class 0 beyond doubt, so row 0 has her whole vote.
+	if got := raw.ConfusionOf(4)[0*k+0]; got != 0 {
+		t.Errorf("no smoothing: true 0 vote 0 = %g, want 0", got)
+	}
+	if got := raw.ConfusionOf(4)[0*k+2]; math.Abs(got-1) > 1e-12 {
+		t.Errorf("no smoothing: true 0 vote 2 = %g, want 1", got)
+	}
+}
+
+// MaxIterations stops EM short, and the result says so.
+func TestDawidSkeneIterationCap(t *testing.T) {
+	v := anaesthesiaVotes(t)
+	full, err := DawidSkene(v, DawidSkeneOptions{NoSmoothing: true, Tolerance: 1e-15, MaxIterations: 10000})
+	if err != nil {
+		t.Fatal(err)
+	}
+	const limit = 3
+	if !full.Converged || full.Iterations <= limit {
+		t.Fatalf("uncapped fit: converged %v after %d iterations; the cap would not bite", full.Converged, full.Iterations)
+	}
+	capped, err := DawidSkene(v, DawidSkeneOptions{NoSmoothing: true, Tolerance: 1e-15, MaxIterations: limit})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if capped.Converged || capped.Iterations != limit {
+		t.Errorf("capped fit: converged %v after %d iterations, want false after %d", capped.Converged, capped.Iterations, limit)
+	}
+	if capped.LogLikelihood >= full.LogLikelihood {
+		t.Errorf("capped log-likelihood %v not below the converged %v", capped.LogLikelihood, full.LogLikelihood)
+	}
+}

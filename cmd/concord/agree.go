@@ -37,7 +37,11 @@ accuracy reported therefore comes from a second fit WITHOUT gold held fixed
 (gold.method in the JSON says which). With --method mv the consensus is plain
 majority vote; a tie gets no label (null, "tied": true in the JSON) and counts
 as wrong in the gold accuracy (accuracy_ties_split scores it 1/(labels tied)).
-Either way the labeller report and the vote policy use a Dawid-Skene fit.
+Either way the labeller report and the vote policy use the Dawid-Skene fit
+with gold held fixed: with --method mv each item's label and confidence are
+majority vote's, but its status, more votes and place in the queue come from
+the Dawid-Skene posterior (vote shares are not probabilities), so a unanimous
+item can still need votes and a tie can be done.
 Accuracies and flags are estimates meant to start a conversation with a
 labeller; where they touch pay or hours, local law and agreements apply.`
 
@@ -344,7 +348,11 @@ func analyseVotes(vt *voteTable, gold *goldSet, o agreeOptions) (*agreeReport, e
 		rep.MethodName = "Dawid-Skene"
 	}
 
-	plans, err := o.policy.Plan(cons, agreement.AverageConfusion(ds))
+	// The policy plans from the Dawid-Skene posteriors whatever --method
+	// reports: vote shares are not probabilities (two careless labellers
+	// agreeing give a share of 1), and its look-ahead multiplies the
+	// posterior by the fitted confusion matrices.
+	plans, err := o.policy.Plan(&ds.Consensus, agreement.AverageConfusion(ds))
 	if err != nil {
 		return nil, fmt.Errorf("agree: vote policy: %w", err)
 	}

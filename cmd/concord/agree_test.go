@@ -297,13 +297,16 @@ func TestAgreeDuplicateVotes(t *testing.T) {
 }
 
 // A majority-vote tie has a null label and tied: true; it is not done.
+// Neither is the unanimous item, though its share is 1: the policy reads the
+// Dawid-Skene posterior, and two votes from two labellers seen on two items
+// leave that below the 0.95 target.
 func TestAgreeMajorityTie(t *testing.T) {
 	out, _ := agreeJSON(t, "--votes", agreeData+"tie.csv", "--method", "mv", "--bootstrap", "0")
 	c := out.Consensus[0]
 	if c.Label != nil || !c.Tied || !slices.Equal(c.TiedLabels, []string{"glass", "PET bottle"}) || c.Status != "needs_votes" || !near(c.Confidence, 0.5, 0) {
 		t.Errorf("tied item: %+v", c)
 	}
-	if d := out.Consensus[1]; d.Label == nil || *d.Label != "glass" || d.Tied || d.Status != "done" {
+	if d := out.Consensus[1]; d.Label == nil || *d.Label != "glass" || d.Tied || !near(d.Confidence, 1, 0) || d.Status != "needs_votes" {
 		t.Errorf("unanimous item: %+v", d)
 	}
 }
@@ -475,4 +478,73 @@ func BenchmarkAgreeCSV1M(b *testing.B) {
 			}
 		}
 	})
+}
+
+// The vote policy plans from the Dawid-Skene posteriors whichever consensus
+// --method reports (see agreeUsage), because vote shares are not
+// probabilities: with mv, labels and confidences are majority vote's, but
+// statuses and the queue must be those of Plan on the gold-fixed fit. The
+// data must make the two plans differ, or the test could not tell them
+// apart.
+func TestAgreeMajorityPlansFromDawidSkene(t *testing.T) {
+	vt, err := readVotesCSV("votes.csv", strings.NewReader(mustRead(t, agreeData+"votes.csv")), defaultVoteColumns)
+	if err != nil {
+		t.Fatal(err)
+	}
+	v, b := vt.votes, vt.builder
+	gold := map[int]int{}
+	for _, r := range [][2]string{{"belt-0003", "cardboard"}, {"belt-0004", "glass"}, {"belt-0008", "residual waste"}, {"belt-0009", "aluminium can"}, {"belt-0012", "cardboard"}} {
+		it, ok1 := b.ItemID(r[0])
+		c, ok2 := b.ClassID(r[1])
+		if !ok1 || !ok2 {
+			t.Fatalf("gold.csv row %v not in votes.csv", r)
+		}
+		gold[it] = c
+	}
+	ds, err := agreement.DawidSkene(v, agreement.DawidSkeneOptions{Fixed: gold})
+	if err != nil {
+		t.Fatal(err)
+	}
+	mv, err := agreement.MajorityVote(v)
+	if err != nil {
+		t.Fatal(err)
+	}
+	policy := agreement.VotePolicy{MinVotes: 2, MaxVotes: 7, Target: 0.95} // agree's defaults
+	avg := agreement.AverageConfusion(ds)
+	want, err := policy.Plan(&ds.Consensus, avg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	wrong, err := policy.Plan(&mv.Consensus, avg)
+	if err != nil {
+		t.Fatal(err)
+	}
+	differ := 0
+	for i := range want {
+		if want[i].Status != wrong[i].Status {
+			differ++
+		}
+	}
+	if differ == 0 {
+		t.Fatal("vote shares and Dawid-Skene posteriors give the same statuses: the data cannot catch a mix-up")
+	}
+	wantQueue := agreement.Queue(want)
+
+	out, _ := agreeJSON(t, "--votes", agreeData+"votes.csv", "--gold", agreeData+"gold.csv", "--method", "mv", "--bootstrap", "0")
+	for i, c := range out.Consensus {
+		if c.Status != want[i].Status.String() || c.Votes != want[i].Votes {
+			t.Errorf("%s: status %s on %d votes, want %s on %d (vote shares would give %s)", c.Item, c.Status, c.Votes, want[i].Status, want[i].Votes, wrong[i].Status)
+		}
+		if c.Confidence == nil || *c.Confidence != mv.Confidence[i] {
+			t.Errorf("%s: confidence %v, want the majority share %v", c.Item, c.Confidence, mv.Confidence[i])
+		}
+	}
+	if len(out.Queue) != len(wantQueue) {
+		t.Fatalf("queue has %d items, want %d", len(out.Queue), len(wantQueue))
+	}
+	for i, q := range out.Queue {
+		if w := wantQueue[i]; q.Item != b.ItemNames()[w.Item] || q.MoreVotes != w.MoreVotes {
+			t.Errorf("queue %d: %+v, want %s needing %d more", i, q, b.ItemNames()[w.Item], w.MoreVotes)
+		}
+	}
 }
