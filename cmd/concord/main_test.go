@@ -5,6 +5,7 @@ import (
 	"context"
 	"errors"
 	"flag"
+	"fmt"
 	"os"
 	"strings"
 	"testing"
@@ -98,5 +99,44 @@ func TestEnvironmentSetsFlags(t *testing.T) {
 	var ue usageError
 	if !errors.As(r.err, &ue) || !strings.Contains(r.err.Error(), "CONCORD_MIN_VOTES") {
 		t.Errorf("bad env value: %v", r.err)
+	}
+}
+
+// A vote policy or pay flag that breaks a rule of the projects table is
+// refused before the database is touched, naming the flag.
+func TestProjectCreateChecksPolicyFlags(t *testing.T) {
+	cases := []struct {
+		flags []string
+		want  string
+	}{
+		{[]string{"--min-votes", "5", "--max-votes", "3"}, "--max-votes 3: must be at least --min-votes (5)"},
+		{[]string{"--min-votes", "0"}, "--min-votes 0: must be between 1 and 50"},
+		{[]string{"--target", "1"}, "--target 1: must be above 0 and below 1"},
+		{[]string{"--gold-rate", "0.6"}, "--gold-rate 0.6: must be between 0 and 0.5"},
+		{[]string{"--claim-seconds", "5"}, "--claim-seconds 5: must be between 10 and 86400"},
+		{[]string{"--pay-model", "per_item"}, `--pay-model "per_item": must be per_vote or per_hour`},
+		{[]string{"--pay-rate", "-1"}, "--pay-rate -1: must not be negative"},
+		{[]string{"--currency", "EURO"}, `--currency "EURO"`},
+	}
+	for i, c := range cases {
+		slug := fmt.Sprintf("bad-policy-%d", i)
+		r := runConcord(t, "", append([]string{"project", "create", "--slug", slug, "--name", "Bad"}, c.flags...))
+		var ue usageError
+		if !errors.As(r.err, &ue) || !strings.Contains(r.err.Error(), c.want) {
+			t.Errorf("%v: error %v, want a usage error with %q", c.flags, r.err, c.want)
+		}
+		if strings.Contains(fmt.Sprint(r.err), "projects_check") {
+			t.Errorf("%v: the database's constraint error leaked: %v", c.flags, r.err)
+		}
+		if l := runConcord(t, "", []string{"project", "list"}); strings.Contains(l.stdout, slug) {
+			t.Errorf("%v: project %s was created", c.flags, slug)
+		}
+	}
+	// A lower-case currency is taken as its code.
+	if r := runConcord(t, "", []string{"project", "create", "--slug", "lower-currency", "--name", "L", "--currency", "usd"}); r.err != nil {
+		t.Fatal(r.err)
+	}
+	if l := runConcord(t, "", []string{"project", "list"}); !strings.Contains(l.stdout, "USD") {
+		t.Errorf("lower-case currency not stored as USD:\n%s", l.stdout)
 	}
 }

@@ -3,6 +3,7 @@ package main
 import (
 	"context"
 	"fmt"
+	"strings"
 	"text/tabwriter"
 
 	"github.com/concord-labs/concord/store"
@@ -45,7 +46,10 @@ func runProject(ctx context.Context, e *env, args []string) error {
 		p := store.Project{Slug: *slug, Name: *name, Description: *desc,
 			Policy: store.VotePolicy{MinVotes: *minVotes, MaxVotes: *maxVotes, ConfidenceTarget: *target,
 				GoldRate: *goldRate, ClaimSeconds: *claim, AccuracyFloor: *floor},
-			Pay: store.PayModel{Model: *payModel, Rate: *rate, Currency: *currency}}
+			Pay: store.PayModel{Model: *payModel, Rate: *rate, Currency: strings.ToUpper(*currency)}}
+		if err := checkPolicyFlags(p); err != nil {
+			return err
+		}
 		// Check the taxonomy before touching the database, so a bad file writes nothing.
 		var labels []store.LabelInput
 		if *taxFile != "" {
@@ -86,4 +90,34 @@ func runProject(ctx context.Context, e *env, args []string) error {
 	default:
 		return usagef("project: unknown action %q (create or list)", args[0])
 	}
+}
+
+// checkPolicyFlags names the flag that breaks a rule of the projects
+// table, so a bad value gets a plain message instead of the database's
+// constraint error. The bounds are the table's CHECKs (migrations/0001).
+func checkPolicyFlags(p store.Project) error {
+	pol, pay := p.Policy, p.Pay
+	switch {
+	case pol.MinVotes < 1 || pol.MinVotes > 50:
+		return usagef("project create: --min-votes %d: must be between 1 and 50", pol.MinVotes)
+	case pol.MaxVotes < 1 || pol.MaxVotes > 50:
+		return usagef("project create: --max-votes %d: must be between 1 and 50", pol.MaxVotes)
+	case pol.MaxVotes < pol.MinVotes:
+		return usagef("project create: --max-votes %d: must be at least --min-votes (%d)", pol.MaxVotes, pol.MinVotes)
+	case !(pol.ConfidenceTarget > 0 && pol.ConfidenceTarget < 1):
+		return usagef("project create: --target %g: must be above 0 and below 1", pol.ConfidenceTarget)
+	case !(pol.GoldRate >= 0 && pol.GoldRate <= 0.5):
+		return usagef("project create: --gold-rate %g: must be between 0 and 0.5", pol.GoldRate)
+	case pol.ClaimSeconds < 10 || pol.ClaimSeconds > 86400:
+		return usagef("project create: --claim-seconds %d: must be between 10 and 86400", pol.ClaimSeconds)
+	case !(pol.AccuracyFloor >= 0 && pol.AccuracyFloor <= 1):
+		return usagef("project create: --accuracy-floor %g: must be between 0 and 1", pol.AccuracyFloor)
+	case pay.Model != store.PayPerVote && pay.Model != store.PayPerHour:
+		return usagef("project create: --pay-model %q: must be per_vote or per_hour", pay.Model)
+	case !(pay.Rate >= 0):
+		return usagef("project create: --pay-rate %g: must not be negative", pay.Rate)
+	case len(pay.Currency) != 3 || strings.Trim(pay.Currency, "ABCDEFGHIJKLMNOPQRSTUVWXYZ") != "":
+		return usagef("project create: --currency %q: must be a three-letter ISO 4217 code such as EUR", pay.Currency)
+	}
+	return nil
 }
