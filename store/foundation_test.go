@@ -3,6 +3,7 @@ package store_test
 import (
 	"context"
 	"errors"
+	"strconv"
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
@@ -203,5 +204,29 @@ func TestMembers(t *testing.T) {
 	}
 	if err := s.AddMember(ctx, -1, ana.ID); !errors.Is(err, store.ErrConflict) {
 		t.Errorf("missing project: %v", err)
+	}
+}
+
+// CreateUserIn makes the user and the membership together, or neither.
+func TestCreateUserIn(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	s := f.s
+	login := "carla-" + strconv.Itoa(fixtureSeq)
+	u, err := s.CreateUserIn(ctx, store.User{Login: login, DisplayName: "Carla", Role: store.RoleLabeller}, f.project.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m, err := s.MemberOf(ctx, f.project.ID, u.ID); err != nil || m.User.Login != login {
+		t.Errorf("MemberOf new user = %+v, %v", m, err)
+	}
+	// A project that does not exist fails the membership's foreign key, and
+	// the user made in the same transaction is gone with it.
+	orphan := "dario-" + strconv.Itoa(fixtureSeq)
+	if _, err := s.CreateUserIn(ctx, store.User{Login: orphan, DisplayName: "Dario", Role: store.RoleLabeller}, f.project.ID+1_000_000); err == nil {
+		t.Fatal("membership of a missing project accepted")
+	}
+	if _, err := s.UserByLogin(ctx, orphan); !errors.Is(err, store.ErrNotFound) {
+		t.Errorf("user left behind by a failed membership: %v", err)
 	}
 }

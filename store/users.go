@@ -4,6 +4,8 @@ import (
 	"context"
 	"fmt"
 	"time"
+
+	"github.com/jackc/pgx/v5"
 )
 
 // Roles and statuses of users.
@@ -43,18 +45,37 @@ func (u *User) dest() []any {
 
 // CreateUser adds a user; the login must be unused (else ErrConflict).
 func (s *Store) CreateUser(ctx context.Context, u User) (User, error) {
-	if u.Status == "" {
-		u.Status = StatusActive
-	}
-	row := s.pool.QueryRow(ctx, `
-		INSERT INTO users (login, display_name, role, password_hash, status)
-		VALUES ($1, $2, $3, $4, $5)
-		RETURNING `+userColumns, u.Login, u.DisplayName, u.Role, u.PasswordHash, u.Status)
-	out, err := scanUser(row)
+	return s.CreateUserIn(ctx, u, 0)
+}
+
+// CreateUserIn adds a user and, when projectID is not 0, makes them a
+// member of that project, in one transaction: a failed membership leaves
+// no user behind.
+func (s *Store) CreateUserIn(ctx context.Context, u User, projectID int64) (User, error) {
+	var out User
+	err := s.inTx(ctx, func(tx pgx.Tx) error {
+		var err error
+		if out, err = createUser(ctx, tx, u); err != nil || projectID == 0 {
+			return err
+		}
+		_, err = tx.Exec(ctx, `INSERT INTO project_members (project_id, user_id) VALUES ($1, $2)`, projectID, out.ID)
+		return err
+	})
 	if err != nil {
 		return User{}, fmt.Errorf("create user %q: %w", u.Login, mapErr(err))
 	}
 	return out, nil
+}
+
+func createUser(ctx context.Context, q querier, u User) (User, error) {
+	if u.Status == "" {
+		u.Status = StatusActive
+	}
+	row := q.QueryRow(ctx, `
+		INSERT INTO users (login, display_name, role, password_hash, status)
+		VALUES ($1, $2, $3, $4, $5)
+		RETURNING `+userColumns, u.Login, u.DisplayName, u.Role, u.PasswordHash, u.Status)
+	return scanUser(row)
 }
 
 // UserByID returns one user.

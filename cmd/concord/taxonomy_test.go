@@ -1,8 +1,12 @@
 package main
 
 import (
+	"context"
 	"strings"
 	"testing"
+
+	"github.com/concord-labs/concord/store"
+	"github.com/concord-labs/concord/web"
 )
 
 func TestTaxonomyCheck(t *testing.T) {
@@ -71,6 +75,26 @@ func TestUserAdd(t *testing.T) {
 	r := runConcord(t, "a long enough password\n", []string{"user", "add", "--login", "rosa", "--role", "labeller", "--project", "user-cli", "--password-stdin"})
 	if r.err != nil || !strings.Contains(r.stdout, "user rosa (labeller) added") {
 		t.Fatalf("user add: %q %v", r.stdout, r.err)
+	}
+	// The user is a member of the project, with the password's hash stored.
+	ctx := context.Background()
+	st := testDB.Open(t)
+	p, err := st.ProjectBySlug(ctx, "user-cli")
+	if err != nil {
+		t.Fatal(err)
+	}
+	u, err := st.UserByLogin(ctx, "rosa")
+	if err != nil {
+		t.Fatal(err)
+	}
+	if m, err := st.MemberOf(ctx, p.ID, u.ID); err != nil || m.Status != store.StatusActive {
+		t.Errorf("rosa's membership of user-cli: %+v, %v", m, err)
+	}
+	if ok, err := web.CheckPassword(u.PasswordHash, "a long enough password"); !ok || err != nil {
+		t.Errorf("stored hash does not check the password: %v, %v", ok, err)
+	}
+	if ok, _ := web.CheckPassword(u.PasswordHash, "another password"); ok {
+		t.Error("stored hash accepts a wrong password")
 	}
 	r = runConcord(t, "", []string{"user", "add", "--login", "rosa"})
 	if r.err == nil || !strings.Contains(r.err.Error(), "conflict") {

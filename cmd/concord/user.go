@@ -63,14 +63,9 @@ func runUser(ctx context.Context, e *env, args []string) error {
 			return err
 		}
 	}
-	u, err := s.CreateUser(ctx, store.User{Login: *login, DisplayName: *name, Role: *role, PasswordHash: hash})
+	u, err := s.CreateUserIn(ctx, store.User{Login: *login, DisplayName: *name, Role: *role, PasswordHash: hash}, p.ID)
 	if err != nil {
 		return err
-	}
-	if p.ID != 0 {
-		if err := s.AddMember(ctx, p.ID, u.ID); err != nil {
-			return err
-		}
 	}
 	fmt.Fprintf(e.stdout, "user %s (%s) added with id %d\n", u.Login, u.Role, u.ID)
 	if hash == "" {
