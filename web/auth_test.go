@@ -3,6 +3,8 @@ package web
 import (
 	"context"
 	"encoding/json"
+	"io"
+	"log/slog"
 	"net/http"
 	"net/http/httptest"
 	"net/url"
@@ -136,6 +138,31 @@ func TestHealth(t *testing.T) {
 		if resp := c.get(p); resp.StatusCode != http.StatusOK {
 			t.Errorf("%s: %d", p, resp.StatusCode)
 		}
+	}
+}
+
+// /readyz says 503 once the database stops answering, while /healthz,
+// which asks only whether the process serves, stays 200.
+func TestReadyzWithoutDatabase(t *testing.T) {
+	st, err := store.Open(context.Background(), testDB.URL)
+	if err != nil {
+		t.Fatal(err)
+	}
+	h := New(st, slog.New(slog.NewTextHandler(io.Discard, nil)), Config{DataDir: t.TempDir()}).Handler()
+	get := func(path string) (int, string) {
+		w := httptest.NewRecorder()
+		h.ServeHTTP(w, httptest.NewRequest("GET", "http://concord.test"+path, nil))
+		return w.Code, w.Body.String()
+	}
+	if code, body := get("/readyz"); code != http.StatusOK || body != "ready\n" {
+		t.Fatalf("readyz with the database up: %d %q", code, body)
+	}
+	st.Close()
+	if code, body := get("/readyz"); code != http.StatusServiceUnavailable || body != "database unavailable\n" {
+		t.Errorf("readyz with the pool closed: %d %q, want 503", code, body)
+	}
+	if code, _ := get("/healthz"); code != http.StatusOK {
+		t.Errorf("healthz with the pool closed: %d, want 200", code)
 	}
 }
 
