@@ -4,6 +4,7 @@ import (
 	"context"
 	"errors"
 	"strconv"
+	"strings"
 	"testing"
 
 	"github.com/google/go-cmp/cmp"
@@ -228,5 +229,23 @@ func TestCreateUserIn(t *testing.T) {
 	}
 	if _, err := s.UserByLogin(ctx, orphan); !errors.Is(err, store.ErrNotFound) {
 		t.Errorf("user left behind by a failed membership: %v", err)
+	}
+}
+
+// A label cannot hang under another project's label (migration 0008).
+func TestTaxonomyParentSameProject(t *testing.T) {
+	ctx := context.Background()
+	a, b := newFixture(t), newFixture(t)
+	_, err := a.s.Pool().Exec(ctx, `
+		INSERT INTO taxonomy_nodes (project_id, parent_id, key, name, position, depth)
+		VALUES ($1, $2, 'stray', 'Stray', 9, 1)`, b.project.ID, a.labels["plastic"].ID)
+	if err == nil || !strings.Contains(err.Error(), "taxonomy_nodes_parent_same_project") {
+		t.Errorf("node under another project's parent: %v, want the foreign key to refuse it", err)
+	}
+	// Under its own project's label it is accepted.
+	if _, err := a.s.Pool().Exec(ctx, `
+		INSERT INTO taxonomy_nodes (project_id, parent_id, key, name, position, depth)
+		VALUES ($1, $2, 'own', 'Own', 9, 1)`, a.project.ID, a.labels["plastic"].ID); err != nil {
+		t.Errorf("node under its own project's parent: %v", err)
 	}
 }
