@@ -104,14 +104,6 @@ func itemUpdateSQL(projectID, itemID int64, u ItemUpdate, delta int) (string, []
 			c.RollupConfidence, nonNil(c.PosteriorLabels), nonNilF(c.Posterior), u.Status, u.VotesNeeded, u.Priority, delta}
 }
 
-// applyItemUpdate writes an item's status, vote count change and
-// consensus in one statement.
-func applyItemUpdate(ctx context.Context, q querier, projectID, itemID int64, u ItemUpdate, delta int) error {
-	sql, args := itemUpdateSQL(projectID, itemID, u, delta)
-	_, err := q.Exec(ctx, sql, args...)
-	return err
-}
-
 func nonNil(x []int64) []int64 {
 	if x == nil {
 		return []int64{}

@@ -215,8 +215,9 @@ type LabellerStats struct {
 	Model *LabellerModel // stored as the confusion JSON
 }
 
-// SaveLabellerStats replaces the project's labeller figures in one
-// transaction, so the vote path never sees half a fit.
+// SaveLabellerStats writes the figures of the labellers in stats, in one
+// transaction, so the vote path never sees half a fit. A labeller left out
+// keeps the row of an earlier fit.
 func (s *Store) SaveLabellerStats(ctx context.Context, projectID int64, stats []LabellerStats) error {
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		b := &pgx.Batch{}
