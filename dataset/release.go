@@ -292,8 +292,9 @@ func levelName(level int) string {
 const SplitRule = "Items are grouped by near-duplicate cluster and manifest group (connected components); " +
 	"each group's split is a hash of the seed and the group's smallest item id (SplitMix64, 100 buckets dealt out by percent), " +
 	"so a group never straddles splits and keeps its split as the dataset grows. If a new item joins two earlier groups, " +
-	"the merged group takes the latest split any of its items had in an earlier release with the same seed and split " +
-	"(test over validation over train), so a test item never becomes a training item. Label shares per split follow " +
+	"the merged group takes the highest split any of its items had in an earlier release (test over validation over train). " +
+	"Items released before keep their split whatever the seed and split of a later release, which deal out only new groups, " +
+	"so a test item never becomes a training item. Label shares per split follow " +
 	"the target only statistically: for labels with at least 1,000 groups, within about 5 percentage points."
 
 // renderReleaseJSON writes release.json; reissued, when not empty, says

@@ -282,3 +282,49 @@ func TestReleaseLevels(t *testing.T) {
 		}
 	}
 }
+
+// A later release with another seed and split ratio deals out only the
+// items never released; every item of the earlier release keeps its
+// split, so no test item becomes a training item.
+func TestReleaseReseededKeepsEarlierSplits(t *testing.T) {
+	ctx := context.Background()
+	f := newReleaseFixture(t)
+	f.add(t, 40)
+	r := &dataset.Releaser{Store: f.s}
+	rel1, _, err := r.Create(ctx, f.p.ID, params("v1"), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	was := map[int64]dataset.Split{}
+	tests := 0
+	for _, row := range rel1.Rows {
+		was[row.Item] = row.Split
+		if row.Split == dataset.Test {
+			tests++
+		}
+	}
+	if tests == 0 {
+		t.Fatal("v1 has no test items; the check below would prove nothing")
+	}
+	f.add(t, 30)
+	p := params("v2-reseeded")
+	p.Seed, p.Split = 43, dataset.Fractions{95, 3, 2}
+	rel2, _, err := r.Create(ctx, f.p.ID, p, nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	newTrain := 0
+	for _, row := range rel2.Rows {
+		if s, ok := was[row.Item]; ok && s != row.Split {
+			t.Errorf("item %d moved from %v in v1 to %v in the reseeded v2", row.Item, s, row.Split)
+		} else if !ok && row.Split == dataset.Train {
+			newTrain++
+		}
+	}
+	// The 30 new items follow the new ratio: at 95% train, hardly any miss it
+	// (each new group lands in train with probability 0.95).
+	if newTrain < 20 {
+		t.Errorf("%d of 30 new items in train under 95/3/2; the new ratio was not used for them", newTrain)
+	}
+	checkGroups(t, f, rel2)
+}

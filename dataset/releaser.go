@@ -18,7 +18,7 @@ type Releaser struct {
 
 // Input loads everything a release of the project is computed from: its
 // items with consensus and lead decisions, the taxonomy, the splits of
-// earlier releases with the same seed and split, the vote policy,
+// earlier releases (of any seed and split), the vote policy,
 // agreement figures and cost.
 func (r *Releaser) Input(ctx context.Context, projectID int64, p ReleaseParams) (ReleaseInput, error) {
 	s := r.Store
@@ -34,7 +34,7 @@ func (r *Releaser) Input(ctx context.Context, projectID int64, p ReleaseParams) 
 	if err != nil {
 		return ReleaseInput{}, err
 	}
-	prior, err := s.PriorSplits(ctx, projectID, p.Seed, p.Split[0], p.Split[1], p.Split[2])
+	prior, err := s.PriorSplits(ctx, projectID)
 	if err != nil {
 		return ReleaseInput{}, err
 	}

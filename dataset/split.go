@@ -101,12 +101,14 @@ type GroupItem struct {
 // near-duplicate cluster" and "same manifest group"; a group's key is its
 // smallest item id, which new items (with larger ids) never change.
 //
-// pins holds the splits items had in earlier releases with the same seed
-// and fractions. They only matter when a new item joins two old groups
-// into one: the merged group then takes the latest split any of its pinned
-// items had (Test over Validation over Train), so a test item never becomes
-// a training item. Without such a merge, pinned items' splits equal
-// GroupSplit's anyway.
+// pins holds the splits items had in earlier releases (of any seed and
+// fractions): a group with a pinned item keeps the pinned split, so only
+// never-released groups are dealt out by seed and fractions. When a new
+// item joins two old groups into one, the merged group takes the highest
+// split any of its pinned items had (Test over Validation over Train), so
+// a test item never becomes a training item. With the same seed and
+// fractions and no such merge, pinned items' splits equal GroupSplit's
+// anyway.
 func AssignSplits(items []GroupItem, seed int64, f Fractions, pins map[int64]Split) (splits []Split, groups []int64) {
 	uf := newUnionFind(len(items))
 	first := map[int64]int32{}

@@ -281,20 +281,20 @@ func (s *Store) ReleasedItems(ctx context.Context, releaseID int64) ([]ReleasedI
 	return out, nil
 }
 
-// PriorSplits returns, for every item in an earlier release of the project
-// cut with this seed and split, the split of the latest such release.
+// PriorSplits returns, for every item in an earlier release of the
+// project, the split it must keep: test if any earlier release had it in
+// test, else validation if any had, else train. Releases cut with another
+// seed or split ratio count too, so a new seed or ratio moves only items
+// never released before, and an item once in test never comes back in
+// validation or train.
 //
-// The releases are read newest first, each through the primary key's
-// release_id prefix, and an item keeps the first split seen: a single
-// DISTINCT ON query sorted every earlier release's items by item id, which
-// took seconds for a million-item project.
-func (s *Store) PriorSplits(ctx context.Context, projectID, seed int64, train, val, test int) (map[int64]string, error) {
+// Each release is read through the primary key's release_id prefix: a
+// single DISTINCT ON query sorted every earlier release's items by item
+// id, which took seconds for a million-item project.
+func (s *Store) PriorSplits(ctx context.Context, projectID int64) (map[int64]string, error) {
 	var ids []int64
 	var most int
-	rows, err := s.pool.Query(ctx, `
-		SELECT id, item_count FROM releases
-		WHERE project_id = $1 AND seed = $2 AND split_train = $3 AND split_val = $4 AND split_test = $5
-		ORDER BY id DESC`, projectID, seed, train, val, test)
+	rows, err := s.pool.Query(ctx, `SELECT id, item_count FROM releases WHERE project_id = $1 ORDER BY id`, projectID)
 	if err != nil {
 		return nil, fmt.Errorf("earlier splits of project %d: %w", projectID, err)
 	}
@@ -320,9 +320,14 @@ func (s *Store) PriorSplits(ctx context.Context, projectID, seed int64, train, v
 	return out, nil
 }
 
-// readSplits adds the splits of a release's items that out lacks. The
-// split names are the constants, not fresh strings, so a million items
-// cost no allocations beyond the map.
+// splitRank orders the splits an item may have had: one of higher rank
+// wins, so test is never given up.
+var splitRank = map[string]int{"train": 1, "validation": 2, "test": 3}
+
+// readSplits merges the splits of a release's items into out, keeping the
+// higher-ranked split where out has one already. The split names are the
+// constants, not fresh strings, so a million items cost no allocations
+// beyond the map.
 func (s *Store) readSplits(ctx context.Context, releaseID int64, out map[int64]string) error {
 	rows, err := s.pool.Query(ctx, `SELECT item_id, split FROM release_items WHERE release_id = $1`, releaseID)
 	if err != nil {
@@ -335,18 +340,19 @@ func (s *Store) readSplits(ctx context.Context, releaseID int64, out map[int64]s
 		if err := rows.Scan(&id, &raw); err != nil {
 			return err
 		}
-		if _, seen := out[id]; seen {
-			continue
-		}
+		var name string
 		switch string(raw) {
 		case "train":
-			out[id] = "train"
+			name = "train"
 		case "validation":
-			out[id] = "validation"
+			name = "validation"
 		case "test":
-			out[id] = "test"
+			name = "test"
 		default:
 			return fmt.Errorf("release %d, item %d: unknown split %q", releaseID, id, raw)
+		}
+		if had, seen := out[id]; !seen || splitRank[name] > splitRank[had] {
+			out[id] = name
 		}
 	}
 	return rows.Err()

@@ -59,15 +59,26 @@ func TestReleasesRecordedOnceAndPinSplits(t *testing.T) {
 	if _, err := f.s.ReleasedItems(ctx, got.ID+1_000_000); !errors.Is(err, store.ErrNotFound) {
 		t.Errorf("ReleasedItems of no release: %v, want ErrNotFound", err)
 	}
-	pins, err := f.s.PriorSplits(ctx, f.project.ID, 9, 80, 10, 10)
+	pins, err := f.s.PriorSplits(ctx, f.project.ID)
 	if err != nil || pins[a] != "test" || pins[b] != "train" {
 		t.Errorf("PriorSplits = %v, %v", pins, err)
 	}
-	if other, _ := f.s.PriorSplits(ctx, f.project.ID, 10, 80, 10, 10); len(other) != 0 {
-		t.Errorf("a release with another seed pins %v", other)
+	// A later release with another seed that put a in train and b in
+	// validation: a stays pinned to test (test is never given up), b moves
+	// up to validation.
+	rel2 := rel
+	rel2.Name, rel2.Seed, rel2.SplitTrain, rel2.SplitVal, rel2.SplitTest = "v1-reseeded", 10, 90, 5, 5
+	items2 := []store.ReleaseItem{{ItemID: a, Split: "train", LabelKey: "glass", Confidence: 0.97, Votes: 4, GroupKey: "1"},
+		{ItemID: b, Split: "validation", LabelKey: "pet-bottle", Confidence: 1, Votes: 0, GroupKey: "2"}}
+	if _, err := f.s.CreateRelease(ctx, rel2, items2); err != nil {
+		t.Fatal(err)
 	}
+	if pins, err := f.s.PriorSplits(ctx, f.project.ID); err != nil || len(pins) != 2 || pins[a] != "test" || pins[b] != "validation" {
+		t.Errorf("PriorSplits over two seeds = %v, %v; want a test, b validation", pins, err)
+	}
+	// Newest first.
 	list, err := f.s.Releases(ctx, f.project.ID)
-	if err != nil || len(list) != 1 || list[0].Name != "v1" {
+	if err != nil || len(list) != 2 || list[0].Name != "v1-reseeded" || list[1].Name != "v1" {
 		t.Errorf("Releases = %+v, %v", list, err)
 	}
 	if _, err := f.s.ReleaseByName(ctx, f.project.ID, "nope"); !errors.Is(err, store.ErrNotFound) {
