@@ -36,20 +36,39 @@ var knownVotes = [][3]string{
 
 func (e *testEnv) knownProject() knownProject {
 	e.t.Helper()
-	ctx := context.Background()
-	k := knownProject{p: e.project()}
-	k.items = e.items(k.p, len(knownVotes))
-	labels := e.labelIDs(k.p)
 	b := agreement.NewBuilder()
-	for range 3 {
+	rows := make([][]string, len(knownVotes))
+	for i := range knownVotes {
+		rows[i] = knownVotes[i][:]
+	}
+	k := knownProject{}
+	k.p, k.items, k.labellers = e.votedProject(rows, 3, b,
+		func(_ store.User, j int) string { return strconv.Itoa(j) },
+		func(_, j int) float64 { return float64(3 + j) })
+	k.votes = b.Build()
+	return k
+}
+
+// votedProject makes a project with n labellers whose votes are rows (the
+// label key of labeller j on item i; "" is no vote), adds each vote to b
+// too, under the name name gives the labeller, and has the engine fit it
+// once. Vote i, j is cast i*10+j minutes ago and took seconds(i, j).
+func (e *testEnv) votedProject(rows [][]string, n int, b *agreement.Builder, name func(u store.User, j int) string, seconds func(i, j int) float64) (store.Project, []int64, []store.User) {
+	e.t.Helper()
+	ctx := context.Background()
+	p := e.project()
+	items := e.items(p, len(rows))
+	labels := e.labelIDs(p)
+	var labellers []store.User
+	for range n {
 		u := e.user(store.RoleLabeller)
-		if err := e.store.AddMember(ctx, k.p.ID, u.ID); err != nil {
+		if err := e.store.AddMember(ctx, p.ID, u.ID); err != nil {
 			e.t.Fatal(err)
 		}
-		k.labellers = append(k.labellers, u)
+		labellers = append(labellers, u)
 	}
 	now := time.Now()
-	for i, row := range knownVotes {
+	for i, row := range rows {
 		for j, key := range row {
 			if key == "" {
 				continue
@@ -57,25 +76,24 @@ func (e *testEnv) knownProject() knownProject {
 			_, err := e.store.Pool().Exec(ctx, `
 				INSERT INTO votes (id, project_id, item_id, labeller_id, label_id, seconds, created_at)
 				VALUES (gen_random_uuid(), $1, $2, $3, $4, $5, $6)`,
-				k.p.ID, k.items[i], k.labellers[j].ID, labels[key], 3+j, now.Add(-time.Duration(i*10+j)*time.Minute))
+				p.ID, items[i], labellers[j].ID, labels[key], seconds(i, j), now.Add(-time.Duration(i*10+j)*time.Minute))
 			if err != nil {
 				e.t.Fatal(err)
 			}
-			if _, err := b.Add(strconv.Itoa(i), strconv.Itoa(j), key, 0); err != nil {
+			if _, err := b.Add(strconv.Itoa(i), name(labellers[j], j), key, seconds(i, j)); err != nil {
 				e.t.Fatal(err)
 			}
 		}
 	}
 	if _, err := e.store.Pool().Exec(ctx, `
 		UPDATE items i SET vote_count = (SELECT count(label_id) FROM votes v WHERE v.item_id = i.id), status = 'needs_votes'
-		WHERE project_id = $1`, k.p.ID); err != nil {
+		WHERE project_id = $1`, p.ID); err != nil {
 		e.t.Fatal(err)
 	}
-	k.votes = b.Build()
-	if err := e.srv.RefitProject(ctx, k.p.ID); err != nil {
+	if err := e.srv.RefitProject(ctx, p.ID); err != nil {
 		e.t.Fatal(err)
 	}
-	return k
+	return p, items, labellers
 }
 
 func TestAgreementPageMatchesFleiss(t *testing.T) {
