@@ -90,6 +90,9 @@ func runLoadtest(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
+	if err := res.nothingToVoteOn(cfg.project); err != nil {
+		return err
+	}
 	rep := res.report()
 	if *asJSON {
 		enc := json.NewEncoder(e.stdout)
@@ -231,6 +234,18 @@ func (r *loadResult) merge(o *loadResult) {
 	for k, v := range o.errors {
 		r.errors[k] += v
 	}
+}
+
+// nothingToVoteOn says why a run that cast no vote measured nothing when
+// every claim came back empty: a report of zero votes and zero errors
+// would read as a server that takes no votes rather than a finished project.
+func (r *loadResult) nothingToVoteOn(project string) error {
+	if len(r.acked) > 0 || r.noWork == 0 || r.noWork != len(r.claim.samples) {
+		return nil
+	}
+	return fmt.Errorf("loadtest: project %s has nothing left to vote on: all %d claims found no open item, so no vote was cast; "+
+		"import more images (concord import --project %s FOLDER) or raise the project's maximum votes per item on its setup page, then run again",
+		project, r.noWork, project)
 }
 
 func (r *loadResult) fail(kind string) {

@@ -173,6 +173,44 @@ func TestLoadtestCommandEndToEnd(t *testing.T) {
 	}
 }
 
+// TestLoadtestFinishedProject: on a project whose every item is done, each
+// claim finds nothing, and loadtest says so and fails instead of reporting
+// zero votes as a clean run.
+func TestLoadtestFinishedProject(t *testing.T) {
+	ctx := context.Background()
+	s := openTestStore(t)
+	p := loadProject(t, s, "load-done", 20, 60)
+	ids, _, _, err := s.ItemStates(ctx, p.ID)
+	if err != nil {
+		t.Fatal(err)
+	}
+	plans := make([]store.ItemPlanRow, len(ids))
+	for i, id := range ids {
+		plans[i] = store.ItemPlanRow{ItemID: id, Status: "done"}
+	}
+	if n, err := s.WriteItemPlans(ctx, p.ID, plans); err != nil || n != len(ids) {
+		t.Fatalf("marked %d of %d items done: %v", n, len(ids), err)
+	}
+	srv := startWeb(t, s)
+
+	r := runConcord(t, "", []string{"loadtest", "--url", srv.URL, "--project", p.Slug, "--labellers", "2", "--duration", "300ms", "--json"})
+	var ue usageError
+	if r.err == nil || errors.As(r.err, &ue) {
+		t.Fatalf("loadtest on a finished project: error %v, want a failure that is not a usage error\n%s", r.err, r.stdout)
+	}
+	for _, want := range []string{"project " + p.Slug + " has nothing left to vote on", "no vote was cast", "import more images", "maximum votes"} {
+		if !strings.Contains(r.err.Error(), want) {
+			t.Errorf("error %q lacks %q", r.err, want)
+		}
+	}
+	if r.stdout != "" {
+		t.Errorf("a failed run printed a report:\n%s", r.stdout)
+	}
+	if c := checkVotes(t, s, p.ID); c.votes != 0 {
+		t.Errorf("database holds %d votes on a finished project", c.votes)
+	}
+}
+
 func TestLoadtestLoginsFile(t *testing.T) {
 	s := openTestStore(t)
 	p := loadProject(t, s, "load-logins", 50, 60)
