@@ -213,8 +213,14 @@ func demoImport(ctx context.Context, out io.Writer, s *store.Store, dataDir stri
 		return nil, err
 	}
 	have := map[int]bool{}
+	most := -1
 	for _, f := range frameOf {
 		have[f] = true
+		most = max(most, f)
+	}
+	if most >= len(crowd.plan.labels) {
+		return nil, usagef("demo: the demo project already holds frames up to number %d, more than --items %d draws; "+
+			"run again with --items %d or more, or add --reset to build it anew", most+1, len(crowd.plan.labels), most+1)
 	}
 	var missing []int
 	for i := range crowd.plan.labels {

@@ -3,13 +3,21 @@ package main
 import (
 	"bytes"
 	"context"
+	"encoding/json"
 	"errors"
 	"image"
 	_ "image/jpeg"
 	_ "image/png"
+	"io"
+	"net/http"
+	"net/http/cookiejar"
+	"net/url"
+	"regexp"
 	"strconv"
 	"strings"
+	"sync"
 	"testing"
+	"time"
 
 	"github.com/concord-labs/concord/dataset"
 	"github.com/concord-labs/concord/store"
@@ -188,6 +196,18 @@ func TestDemoSetupOnly(t *testing.T) {
 		t.Errorf("second run changed the demo: %+v, was %+v", again, first)
 	}
 
+	// Fewer --items than the project holds is refused, saying what to do,
+	// and changes nothing (it used to index past the drawn frames).
+	fewer := []string{"demo", "--setup-only", "--items", strconv.Itoa(n / 2), "--data", dir}
+	r = runConcord(t, "", fewer)
+	var ue usageError
+	if !errors.As(r.err, &ue) || !strings.Contains(r.err.Error(), "--items "+strconv.Itoa(n)+" or more, or add --reset") {
+		t.Errorf("demo --items %d on a %d-item project: %v, want a usage error", n/2, n, r.err)
+	}
+	if again := countDemo(t, s); again != first {
+		t.Errorf("the refused run changed the demo: %+v, was %+v", again, first)
+	}
+
 	r = runConcord(t, "", append(args, "--reset"))
 	if r.err != nil {
 		t.Fatalf("demo --reset: %v", r.err)
@@ -198,6 +218,122 @@ func TestDemoSetupOnly(t *testing.T) {
 	}
 	if !strings.Contains(r.stdout, "Deleted the old demo project") {
 		t.Errorf("--reset output:\n%s", r.stdout)
+	}
+}
+
+// lockedBuffer is a buffer the demo's serving goroutine can write while
+// the test reads it.
+type lockedBuffer struct {
+	mu  sync.Mutex
+	buf bytes.Buffer
+}
+
+func (b *lockedBuffer) Write(p []byte) (int, error) {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	return b.buf.Write(p)
+}
+
+func (b *lockedBuffer) String() string {
+	b.mu.Lock()
+	defer b.mu.Unlock()
+	return b.buf.String()
+}
+
+// demoServing is the line the demo prints once it listens.
+var demoServing = regexp.MustCompile(`serving the demo at (http://\S+)/\nLog in as "([^"]+)" \(lead\) or as a labeller, password "([^"]+)"`)
+
+// TestDemoServes runs the demo as a user would (set-up, then serving) on a
+// port the system picks, logs in as the lead it prints, and stops it.
+func TestDemoServes(t *testing.T) {
+	if testing.Short() {
+		t.Skip("draws, imports and simulates a crowd, then serves")
+	}
+	ctx, cancel := context.WithCancel(context.Background())
+	defer cancel()
+	var out, errOut lockedBuffer
+	e := &env{stdout: &out, stderr: &errOut, stdin: strings.NewReader(""),
+		getenv: func(k string) string { return map[string]string{"DATABASE_URL": testDB.URL}[k] }}
+	done := make(chan error, 1)
+	// --reset: TestDemoSetupOnly leaves a larger demo behind, and a run
+	// with fewer --items than the project holds panics (demo.go, demoGold).
+	go func() {
+		done <- run(ctx, e, []string{"demo", "--reset", "--items", "10", "--addr", "127.0.0.1:0", "--data", t.TempDir(), "--shutdown-timeout", "5s"})
+	}()
+
+	var m []string
+	for deadline := time.Now().Add(30 * time.Second); m == nil; time.Sleep(20 * time.Millisecond) {
+		select {
+		case err := <-done:
+			t.Fatalf("demo returned before serving: %v\n%s%s", err, out.String(), errOut.String())
+		default:
+		}
+		if time.Now().After(deadline) {
+			t.Fatalf("demo printed no address in 30 s:\n%s", out.String())
+		}
+		m = demoServing.FindStringSubmatch(out.String())
+	}
+	base, login, password := m[1], m[2], m[3]
+	if strings.HasSuffix(base, ":0") {
+		t.Fatalf("demo printed %s, not the port it bound", base)
+	}
+	if login != demoLead || password != demoPassword {
+		t.Errorf("demo prints login %q password %q, want %q and %q", login, password, demoLead, demoPassword)
+	}
+
+	resp, err := http.Get(base + "/healthz")
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ := io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if resp.StatusCode != http.StatusOK || string(body) != "ok\n" {
+		t.Errorf("/healthz: %d %q", resp.StatusCode, body)
+	}
+
+	// The login form as a browser posts it: same origin, so the
+	// cross-origin protection lets it through.
+	jar, _ := cookiejar.New(nil)
+	c := &http.Client{Jar: jar, Timeout: 30 * time.Second}
+	req, _ := http.NewRequest(http.MethodPost, base+"/login", strings.NewReader(url.Values{"login": {login}, "password": {password}}.Encode()))
+	req.Header.Set("Content-Type", "application/x-www-form-urlencoded")
+	req.Header.Set("Accept", "application/json")
+	req.Header.Set("Origin", base)
+	req.Header.Set("Sec-Fetch-Site", "same-origin")
+	resp, err = c.Do(req)
+	if err != nil {
+		t.Fatal(err)
+	}
+	var who struct{ User, Role string }
+	err = json.NewDecoder(resp.Body).Decode(&who)
+	resp.Body.Close()
+	if resp.StatusCode != http.StatusOK || err != nil || who.User != demoLead || who.Role != store.RoleLead {
+		t.Fatalf("login as %s: HTTP %d, %+v, %v", login, resp.StatusCode, who, err)
+	}
+	// The session works: the lead's project list, refused to anyone else,
+	// shows the demo project.
+	resp, err = c.Get(base + "/lead/projects")
+	if err != nil {
+		t.Fatal(err)
+	}
+	body, _ = io.ReadAll(resp.Body)
+	resp.Body.Close()
+	if resp.StatusCode != http.StatusOK || !strings.Contains(string(body), demoSlug) {
+		t.Errorf("/lead/projects after login: HTTP %d, mentions %s: %v", resp.StatusCode, demoSlug, strings.Contains(string(body), demoSlug))
+	}
+	c.CloseIdleConnections()
+
+	cancel()
+	select {
+	case err := <-done:
+		if err != nil {
+			t.Errorf("demo after cancel: %v\n%s", err, errOut.String())
+		}
+	case <-time.After(10 * time.Second):
+		t.Fatal("demo still running 10 s after its context ended")
+	}
+	if _, err := http.Get(base + "/healthz"); err == nil {
+		t.Errorf("%s still answers after the demo returned", base)
 	}
 }
 
