@@ -179,3 +179,44 @@ func TestImportManifestRefusesEscapes(t *testing.T) {
 		t.Errorf("folder report %+v, want ok.png imported and link.png skipped", rep)
 	}
 }
+
+// WebP: both encodings decode, are stored as image/webp with their size,
+// and cluster as near-duplicates; a truncated file is reported and skipped.
+// The fixtures come from golang.org/x/image (testdata/webp/README.md).
+func TestImportWebP(t *testing.T) {
+	ctx := context.Background()
+	s, p, im := newProject(t)
+	dir := t.TempDir()
+	var lossy []byte
+	for _, name := range []string{"blue-purple-pink.lossless.webp", "blue-purple-pink.lossy.webp"} {
+		data, err := os.ReadFile(filepath.Join("testdata", "webp", name))
+		if err != nil {
+			t.Fatal(err)
+		}
+		writeFile(t, filepath.Join(dir, name), data)
+		lossy = data
+	}
+	writeFile(t, filepath.Join(dir, "cut.webp"), lossy[:len(lossy)/2])
+	rep, err := im.ImportPath(ctx, p.ID, dir)
+	if err != nil {
+		t.Fatal(err)
+	}
+	if rep.Imported != 2 || len(rep.Skipped) != 1 || rep.Skipped[0].Name != "cut.webp" || !strings.Contains(rep.Skipped[0].Reason, "webp") {
+		t.Errorf("report %+v, want 2 imported and cut.webp skipped as a bad webp", rep)
+	}
+	if rep.Clusters != 1 || rep.ClusteredItems != 2 {
+		t.Errorf("%d clusters of %d items, want the two encodings of one picture together", rep.Clusters, rep.ClusteredItems)
+	}
+	items, err := s.Items(ctx, p.ID, store.ItemPage{Limit: 10})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if len(items) != 2 {
+		t.Fatalf("%d items stored, want 2", len(items))
+	}
+	for _, it := range items {
+		if it.MediaType != "image/webp" || it.Width != 150 || it.Height != 100 {
+			t.Errorf("%s stored as %s %dx%d, want image/webp 150x100", it.OriginalName, it.MediaType, it.Width, it.Height)
+		}
+	}
+}
