@@ -5,6 +5,7 @@ import (
 	"bytes"
 	"compress/gzip"
 	"context"
+	"errors"
 	"crypto/sha256"
 	"encoding/hex"
 	"fmt"
@@ -327,4 +328,33 @@ func TestReleaseReseededKeepsEarlierSplits(t *testing.T) {
 		t.Errorf("%d of 30 new items in train under 95/3/2; the new ratio was not used for them", newTrain)
 	}
 	checkGroups(t, f, rel2)
+}
+
+// A release that fails half-way through writing leaves neither its folder
+// nor a partial one; a folder that is not empty is refused.
+func TestWriteDirAllOrNothing(t *testing.T) {
+	ctx := context.Background()
+	f := newReleaseFixture(t)
+	f.add(t, 12)
+	rel, _, err := (&dataset.Releaser{Store: f.s}).Create(ctx, f.p.ID, params("v1"), nil)
+	if err != nil {
+		t.Fatal(err)
+	}
+	parent := t.TempDir()
+	out := filepath.Join(parent, "v1")
+	cancelled, cancel := context.WithCancel(ctx)
+	cancel() // stops the image loop after the release's own files are written
+	if _, err := rel.WriteDir(cancelled, f.im.Blobs, out); !errors.Is(err, context.Canceled) {
+		t.Fatalf("cancelled write: %v, want context.Canceled", err)
+	}
+	if left, _ := os.ReadDir(parent); len(left) != 0 {
+		t.Errorf("a failed write left %v in the parent folder", left)
+	}
+	if _, err := rel.WriteDir(ctx, f.im.Blobs, out); err != nil {
+		t.Fatal(err)
+	}
+	checkSums(t, out, 12+4)
+	if _, err := rel.WriteDir(ctx, f.im.Blobs, out); err == nil || !strings.Contains(err.Error(), "not empty") {
+		t.Errorf("second write into the same folder: %v, want not empty", err)
+	}
 }

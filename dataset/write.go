@@ -7,6 +7,7 @@ import (
 	"errors"
 	"fmt"
 	"io"
+	"io/fs"
 	"os"
 	"path"
 	"path/filepath"
@@ -24,21 +25,56 @@ type LinkStats struct {
 // WriteDir writes the release into dir, which must be empty or absent:
 // manifests, release.json, CARD.md, SHA256SUMS, and with the folders format
 // split/label/file, hard-linked from the blob store when it is on the same
-// file system, else copied.
+// file system, else copied. It writes into a hidden sibling folder and
+// renames it to dir at the end, so a failure (a full disk, a missing
+// image, a cancel) leaves no half-written release behind.
 func (rel *Release) WriteDir(ctx context.Context, blobs blob.Store, dir string) (LinkStats, error) {
-	var st LinkStats
-	if err := os.MkdirAll(dir, 0o755); err != nil {
-		return st, fmt.Errorf("release folder: %w", err)
+	if err := CheckOutDir(dir); err != nil {
+		return LinkStats{}, err
 	}
-	if entries, err := os.ReadDir(dir); err != nil || len(entries) > 0 {
-		if err == nil {
-			err = errors.New("not empty; choose a new folder so releases never mix")
+	dir = filepath.Clean(dir)
+	if err := os.MkdirAll(filepath.Dir(dir), 0o755); err != nil {
+		return LinkStats{}, fmt.Errorf("release folder: %w", err)
+	}
+	tmp, err := os.MkdirTemp(filepath.Dir(dir), "."+filepath.Base(dir)+".partial-")
+	if err != nil {
+		return LinkStats{}, fmt.Errorf("release folder: %w", err)
+	}
+	st, err := rel.writeInto(ctx, blobs, tmp)
+	if err == nil {
+		if err = os.Chmod(tmp, 0o755); err == nil {
+			// rename(2) replaces an empty folder at dir, or makes it.
+			err = os.Rename(tmp, dir)
 		}
-		return st, fmt.Errorf("release folder %s: %w", dir, err)
 	}
+	if err != nil {
+		os.RemoveAll(tmp)
+		return LinkStats{}, fmt.Errorf("release folder %s: %w", dir, err)
+	}
+	return st, nil
+}
+
+// CheckOutDir says whether dir can take a release: absent or empty, so
+// releases never mix. Callers check before recording a release.
+func CheckOutDir(dir string) error {
+	entries, err := os.ReadDir(dir)
+	switch {
+	case errors.Is(err, fs.ErrNotExist):
+		return nil
+	case err != nil:
+		return fmt.Errorf("release folder %s: %w", dir, err)
+	case len(entries) > 0:
+		return fmt.Errorf("release folder %s: not empty; choose a new folder so releases never mix", dir)
+	}
+	return nil
+}
+
+// writeInto writes the release's files and image folders into dir.
+func (rel *Release) writeInto(ctx context.Context, blobs blob.Store, dir string) (LinkStats, error) {
+	var st LinkStats
 	for _, name := range rel.fileNames() {
 		if err := os.WriteFile(filepath.Join(dir, name), rel.Files[name], 0o644); err != nil {
-			return st, fmt.Errorf("release folder: %w", err)
+			return st, err
 		}
 	}
 	if !rel.Params.has(FormatFolders) {
@@ -52,13 +88,13 @@ func (rel *Release) WriteDir(ctx context.Context, blobs blob.Store, dir string) 
 		dst := filepath.Join(dir, filepath.FromSlash(r.File))
 		if d := filepath.Dir(dst); !made[d] {
 			if err := os.MkdirAll(d, 0o755); err != nil {
-				return st, fmt.Errorf("release folder: %w", err)
+				return st, err
 			}
 			made[d] = true
 		}
 		linked, err := blob.Materialize(ctx, blobs, r.SHA256, dst)
 		if err != nil {
-			return st, fmt.Errorf("release folder: item %d: %w", r.Item, err)
+			return st, fmt.Errorf("item %d: %w", r.Item, err)
 		}
 		if linked {
 			st.Linked++

@@ -85,6 +85,11 @@ func runRelease(ctx context.Context, e *env, args []string) error {
 	if err != nil {
 		return err
 	}
+	// A folder that cannot take the release is refused before the release
+	// is recorded.
+	if err := dataset.CheckOutDir(*out); err != nil {
+		return err
+	}
 	rel, rec, err := (&dataset.Releaser{Store: s}).Create(ctx, proj.ID, p, nil)
 	if err != nil {
 		return err

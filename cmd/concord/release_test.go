@@ -48,8 +48,19 @@ func TestReleaseCommand(t *testing.T) {
 		t.Fatal(err)
 	}
 
+	// A folder that is not empty is refused before anything is recorded.
+	full := t.TempDir()
+	writeTestFile(t, filepath.Join(full, "old.txt"), []byte("an earlier release"))
+	r := runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r0", "--data", data, "--out", full})
+	if r.err == nil || !strings.Contains(r.err.Error(), "not empty") {
+		t.Errorf("release into a full folder: %v, want not empty", r.err)
+	}
+	if _, err := s.ReleaseByName(ctx, p.ID, "r0"); err == nil {
+		t.Error("the refused release r0 was recorded")
+	}
+
 	out := filepath.Join(t.TempDir(), "r1")
-	r := runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r1", "--data", data,
+	r = runConcord(t, "", []string{"release", "--project", "release-cli", "--name", "r1", "--data", data,
 		"--format", "jsonl,csv,folders", "--split", "70/15/15", "--out", out})
 	if r.err != nil {
 		t.Fatalf("release: %v\n%s", r.err, r.stdout)
