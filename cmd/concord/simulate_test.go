@@ -34,14 +34,7 @@ func TestSimulateJSON(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	var rep simReport
-	if err := json.Unmarshal([]byte(out), &rep); err != nil {
-		t.Fatalf("output is not JSON: %v\n%s", err, out)
-	}
-	byName := map[string]policyResult{}
-	for _, p := range rep.Policies {
-		byName[p.Name] = p
-	}
+	rep, byName := decodeSimReport(t, out)
 	want := []string{"majority-3", "majority-5", "majority-7", "dawid-skene-3", "dawid-skene-5", "dawid-skene-7",
 		"adaptive-0.9", "adaptive-0.95", "adaptive-0.97", "adaptive-0.98", "adaptive-0.99", "adaptive-0.995"}
 	if len(rep.Policies) != len(want) {
@@ -97,9 +90,26 @@ func TestSimulateJSON(t *testing.T) {
 	checkSVG(t, svg)
 }
 
-// cheapestMatch is the adaptive row with the fewest votes that gets at
-// least as many items right as majority-5, found from the rows alone.
-func cheapestMatch(rep simReport, byName map[string]policyResult) (policyResult, bool) {
+// decodeSimReport reads simulate's --json output and indexes its rows by
+// policy name.
+func decodeSimReport(t *testing.T, out string) (simReport, map[string]policyResult) {
+	t.Helper()
+	var rep simReport
+	if err := json.Unmarshal([]byte(out), &rep); err != nil {
+		t.Fatalf("output is not JSON: %v\n%s", err, out)
+	}
+	byName := map[string]policyResult{}
+	for _, p := range rep.Policies {
+		byName[p.Name] = p
+	}
+	return rep, byName
+}
+
+// checkBackedByRows finds, from the rows alone, the adaptive policy with
+// the fewest votes that gets at least as many items right as majority-5;
+// it requires one and that the report's check names it with its vote share.
+func checkBackedByRows(t *testing.T, rep simReport, byName map[string]policyResult) policyResult {
+	t.Helper()
 	base := byName["majority-5"]
 	var best policyResult
 	found := false
@@ -108,18 +118,10 @@ func cheapestMatch(rep simReport, byName map[string]policyResult) (policyResult,
 			best, found = p, true
 		}
 	}
-	return best, found
-}
-
-// checkBackedByRows requires an adaptive match and that the report's check
-// names it with its vote share.
-func checkBackedByRows(t *testing.T, rep simReport, byName map[string]policyResult) policyResult {
-	t.Helper()
-	best, ok := cheapestMatch(rep, byName)
-	if !ok {
-		t.Fatalf("no adaptive policy gets as many items right as majority-5 (%d)", byName["majority-5"].Correct)
+	if !found {
+		t.Fatalf("no adaptive policy gets as many items right as majority-5 (%d)", base.Correct)
 	}
-	share := float64(best.Votes) / float64(byName["majority-5"].Votes)
+	share := float64(best.Votes) / float64(base.Votes)
 	if c := rep.Check; c.Policy != best.Name || c.VoteShare != share || c.Accuracy != best.Accuracy {
 		t.Errorf("check %+v; the rows say %s with %v of majority-5's votes", c, best.Name, share)
 	}
@@ -138,14 +140,7 @@ func TestSimulateDefaultCrowd(t *testing.T) {
 	if err != nil {
 		t.Fatal(err)
 	}
-	var rep simReport
-	if err := json.Unmarshal([]byte(out), &rep); err != nil {
-		t.Fatalf("output is not JSON: %v\n%s", err, out)
-	}
-	byName := map[string]policyResult{}
-	for _, p := range rep.Policies {
-		byName[p.Name] = p
-	}
+	rep, byName := decodeSimReport(t, out)
 	if rep.Crowd != agreement.DefaultCrowdSpec || rep.Items != 2000 || byName["majority-5"].Votes != 5*2000 {
 		t.Fatalf("crowd %q, %d items, majority-5 %d votes; want the defaults", rep.Crowd, rep.Items, byName["majority-5"].Votes)
 	}
