@@ -2,9 +2,6 @@ package web
 
 import (
 	"context"
-	"image"
-	"image/color"
-	"image/png"
 	"io/fs"
 	"net/http"
 	"net/url"
@@ -272,21 +269,10 @@ func TestLabellerAndItemFigures(t *testing.T) {
 	}
 }
 
-// pngFile writes a 6x6 PNG of one colour, so files differ by their bytes.
-func pngFile(t *testing.T, path string, c color.RGBA) {
+// writeBelt writes a sorting-line frame (beltPNG: different every call).
+func writeBelt(t *testing.T, path string) {
 	t.Helper()
-	img := image.NewRGBA(image.Rect(0, 0, 6, 6))
-	for x := range 6 {
-		for y := range 6 {
-			img.SetRGBA(x, y, c)
-		}
-	}
-	f, err := os.Create(path)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer f.Close()
-	if err := png.Encode(f, img); err != nil {
+	if err := os.WriteFile(path, beltPNG(t), 0o644); err != nil {
 		t.Fatal(err)
 	}
 }
@@ -326,13 +312,13 @@ func TestSetupImportFolder(t *testing.T) {
 	if err := os.MkdirAll(dir, 0o755); err != nil {
 		t.Fatal(err)
 	}
-	for i, c := range []color.RGBA{{200, 30, 30, 255}, {30, 200, 30, 255}, {30, 30, 200, 255}} {
-		pngFile(t, filepath.Join(dir, "belt-"+strconv.Itoa(i)+".png"), c)
+	for i := range 3 {
+		writeBelt(t, filepath.Join(dir, "belt-"+strconv.Itoa(i)+".png"))
 	}
 	// Images outside the root that an escaping path would reach: were any
 	// of them imported, the project's item count would grow.
 	outside := t.TempDir()
-	pngFile(t, filepath.Join(outside, "elsewhere.png"), color.RGBA{90, 90, 90, 255})
+	writeBelt(t, filepath.Join(outside, "elsewhere.png"))
 	if err := os.Symlink(outside, filepath.Join(root, "link-out")); err != nil {
 		t.Fatal(err)
 	}
