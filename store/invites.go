@@ -81,13 +81,11 @@ func (s *Store) AcceptInvite(ctx context.Context, tokenHash []byte, u User) (Use
 		if err != nil {
 			return err
 		}
-		out, err = scanUser(tx.QueryRow(ctx, `
-			INSERT INTO users (login, display_name, role, password_hash) VALUES ($1, $2, 'labeller', $3)
-			RETURNING `+userColumns, u.Login, u.DisplayName, u.PasswordHash))
+		out, err = createUser(ctx, tx, User{Login: u.Login, DisplayName: u.DisplayName, Role: RoleLabeller, PasswordHash: u.PasswordHash})
 		if err != nil {
 			return err
 		}
-		if _, err := tx.Exec(ctx, `INSERT INTO project_members (project_id, user_id) VALUES ($1, $2)`, inv.ProjectID, out.ID); err != nil {
+		if err := addMember(ctx, tx, inv.ProjectID, out.ID); err != nil {
 			return err
 		}
 		_, err = tx.Exec(ctx, `UPDATE invites SET used_by = $2, used_at = now() WHERE token_hash = $1`, tokenHash, out.ID)

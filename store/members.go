@@ -17,13 +17,17 @@ type Member struct {
 
 // AddMember adds a user to a project; adding an existing member is a no-op.
 func (s *Store) AddMember(ctx context.Context, projectID, userID int64) error {
-	_, err := s.pool.Exec(ctx, `
-		INSERT INTO project_members (project_id, user_id) VALUES ($1, $2)
-		ON CONFLICT (project_id, user_id) DO NOTHING`, projectID, userID)
-	if err != nil {
+	if err := addMember(ctx, s.pool, projectID, userID); err != nil {
 		return fmt.Errorf("add user %d to project %d: %w", userID, projectID, mapErr(err))
 	}
 	return nil
+}
+
+func addMember(ctx context.Context, q querier, projectID, userID int64) error {
+	_, err := q.Exec(ctx, `
+		INSERT INTO project_members (project_id, user_id) VALUES ($1, $2)
+		ON CONFLICT (project_id, user_id) DO NOTHING`, projectID, userID)
+	return err
 }
 
 // SetMemberStatus pauses, resumes or blocks a labeller in one project: a

@@ -45,21 +45,27 @@ func (u *User) dest() []any {
 
 // CreateUser adds a user; the login must be unused (else ErrConflict).
 func (s *Store) CreateUser(ctx context.Context, u User) (User, error) {
-	return s.CreateUserIn(ctx, u, 0)
+	out, err := createUser(ctx, s.pool, u)
+	if err != nil {
+		return User{}, fmt.Errorf("create user %q: %w", u.Login, mapErr(err))
+	}
+	return out, nil
 }
 
 // CreateUserIn adds a user and, when projectID is not 0, makes them a
 // member of that project, in one transaction: a failed membership leaves
 // no user behind.
 func (s *Store) CreateUserIn(ctx context.Context, u User, projectID int64) (User, error) {
+	if projectID == 0 {
+		return s.CreateUser(ctx, u)
+	}
 	var out User
 	err := s.inTx(ctx, func(tx pgx.Tx) error {
 		var err error
-		if out, err = createUser(ctx, tx, u); err != nil || projectID == 0 {
+		if out, err = createUser(ctx, tx, u); err != nil {
 			return err
 		}
-		_, err = tx.Exec(ctx, `INSERT INTO project_members (project_id, user_id) VALUES ($1, $2)`, projectID, out.ID)
-		return err
+		return addMember(ctx, tx, projectID, out.ID)
 	})
 	if err != nil {
 		return User{}, fmt.Errorf("create user %q: %w", u.Login, mapErr(err))
