@@ -8,6 +8,7 @@ import (
 	"fmt"
 	"net/http"
 	"net/http/httptest"
+	"os"
 	"slices"
 	"strconv"
 	"strings"
@@ -176,6 +177,7 @@ func benchVoteAndClaim(b *testing.B, pace time.Duration) {
 	var wg sync.WaitGroup
 	var failed atomic.Value
 	b.ResetTimer()
+	cpu0 := readCPU()
 	start := time.Now()
 	for i := range benchLabellers {
 		share := b.N / benchLabellers
@@ -205,6 +207,7 @@ func benchVoteAndClaim(b *testing.B, pace time.Duration) {
 	}
 	wg.Wait()
 	elapsed := time.Since(start)
+	cpu1 := readCPU()
 	b.StopTimer()
 	if err, _ := failed.Load().(error); err != nil {
 		b.Fatal(err)
@@ -223,4 +226,50 @@ func benchVoteAndClaim(b *testing.B, pace time.Duration) {
 	b.ReportMetric(pct(0.50), "p50-ms")
 	b.ReportMetric(pct(0.99), "p99-ms")
 	b.ReportMetric(float64(len(all))/elapsed.Seconds(), "votes/s")
+	if cpu0.ok && cpu1.ok {
+		// CPU per vote drifts less with the shared host than votes/s do:
+		// machine is every process (PostgreSQL and this one), self is
+		// this process (handlers, the Decider and the benchmark client).
+		b.ReportMetric(float64((cpu1.machine-cpu0.machine).Microseconds())/float64(len(all)), "machine-cpu-µs/vote")
+		b.ReportMetric(float64((cpu1.self-cpu0.self).Microseconds())/float64(len(all)), "self-cpu-µs/vote")
+	}
+}
+
+// cpuTimes is CPU time used so far by the whole machine and by this
+// process, read from /proc (Linux); ok is false elsewhere.
+type cpuTimes struct {
+	machine, self time.Duration
+	ok            bool
+}
+
+// readCPU reads the busy time of all CPUs (user, nice, system, irq,
+// softirq) and this process's user and system time, in clock ticks of
+// 1/100 s (USER_HZ, 100 on every Linux platform Go supports).
+func readCPU() cpuTimes {
+	const tick = 10 * time.Millisecond
+	stat, err1 := os.ReadFile("/proc/stat")
+	self, err2 := os.ReadFile("/proc/self/stat")
+	if err1 != nil || err2 != nil {
+		return cpuTimes{}
+	}
+	line, _, _ := strings.Cut(string(stat), "\n")
+	f := strings.Fields(line)
+	// The process name in /proc/self/stat is in parentheses and may hold
+	// spaces; the fields after it start with the state (field 3).
+	_, rest, _ := strings.Cut(string(self), ") ")
+	g := strings.Fields(rest)
+	if len(f) < 8 || f[0] != "cpu" || len(g) < 13 {
+		return cpuTimes{}
+	}
+	var t cpuTimes
+	for _, i := range []int{1, 2, 3, 6, 7} {
+		n, _ := strconv.ParseInt(f[i], 10, 64)
+		t.machine += time.Duration(n) * tick
+	}
+	for _, i := range []int{11, 12} { // utime, stime: fields 14 and 15
+		n, _ := strconv.ParseInt(g[i], 10, 64)
+		t.self += time.Duration(n) * tick
+	}
+	t.ok = true
+	return t
 }
