@@ -207,6 +207,19 @@ func (r *claimRound) keep() bool {
 	return !r.found || !r.voted && (r.how != "open" || r.live <= r.needed)
 }
 
+// outcome is the claim to hand back, or the item of a claim that must be
+// taken back (retake), once the round's transaction has committed.
+func (r *claimRound) outcome() (claim *Claim, retake int64) {
+	switch {
+	case !r.found: // nothing claimed, or nothing asked for
+		return nil, 0
+	case !r.keep():
+		return nil, r.itemID
+	}
+	c := r.c
+	return &c, 0
+}
+
 // withExtra is a row whose leading columns go to lead and trailing columns
 // to extra, so scanItem or scanProject can read a row with more columns.
 type withExtra struct {

@@ -50,7 +50,8 @@ var DefaultMaxConns = int32(max(8, 4*runtime.NumCPU()))
 
 // Store is Concord's database.
 type Store struct {
-	pool *pgxpool.Pool
+	pool  *pgxpool.Pool
+	votes *voteBatcher
 }
 
 // Open connects to the database at url and checks that it answers.
@@ -73,17 +74,22 @@ func Open(ctx context.Context, url string) (*Store, error) {
 		pool.Close()
 		return nil, fmt.Errorf("connect to database: %w", err)
 	}
-	return &Store{pool: pool}, nil
+	return New(pool), nil
 }
 
 // New wraps an existing pool.
-func New(pool *pgxpool.Pool) *Store { return &Store{pool: pool} }
+func New(pool *pgxpool.Pool) *Store {
+	return &Store{pool: pool, votes: newVoteBatcher(pool.Config().MaxConns)}
+}
 
 // Pool exposes the pool for readiness checks and the engine's advisory locks.
 func (s *Store) Pool() *pgxpool.Pool { return s.pool }
 
-// Close closes the pool.
-func (s *Store) Close() { s.pool.Close() }
+// Close stops the vote workers and closes the pool.
+func (s *Store) Close() {
+	s.votes.close()
+	s.pool.Close()
+}
 
 // Ping checks that the database answers (for /readyz).
 func (s *Store) Ping(ctx context.Context) error { return s.pool.Ping(ctx) }

@@ -8,6 +8,7 @@ import (
 	"time"
 
 	"github.com/jackc/pgx/v5"
+	"github.com/jackc/pgx/v5/pgxpool"
 )
 
 // ErrNoClaim means a vote came for an item the labeller does not hold, or
@@ -53,20 +54,25 @@ func (s *Store) RecordVote(ctx context.Context, v NewVote, decide Decider) (Vote
 }
 
 // RecordVoteAndClaim is RecordVote followed, in the same transaction, by
-// ClaimNext(next) when next is not nil: one commit per vote. A repeated vote
-// id claims in a transaction of its own. The claim is nil when nothing is
-// left for the labeller.
+// ClaimNext(next) when next is not nil. A repeated vote id claims in a
+// transaction of its own. The claim is nil when nothing is left for the
+// labeller.
 //
-// The transaction takes two round trips to the database: BEGIN with the
-// vote (which also reads the item's votes), then the item's new state, the
-// claim with its check, and COMMIT together (see voteAndCommit); a third
-// when a vote on the item committed while this one waited for it.
+// Votes that arrive while others are being written share a transaction
+// (see votebatch.go); a vote alone, or one whose batch failed, goes
+// through voteAndCommit. Either way the transaction takes two round trips
+// to the database: BEGIN with the vote (which also reads the item's
+// votes), then the item's new state, the claim with its check, and COMMIT
+// together; a third when a vote on the item committed while this one
+// waited for it.
 func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decider, next *ClaimRequest) (VoteResult, *Claim, error) {
 	var res VoteResult
 	var claim *Claim
 	var retake int64
 	var err error
-	for range txAttempts {
+	out := s.batchedVote(ctx, v, decide, next)
+	res, claim, retake, err = out.res, out.claim, out.retake, out.err
+	for attempt := 0; out.alone && attempt < txAttempts; attempt++ {
 		if res, claim, retake, err = s.voteAndCommit(ctx, v, decide, next); !retryable(err) {
 			break
 		}
@@ -105,15 +111,7 @@ func (s *Store) voteAndCommit(ctx context.Context, v NewVote, decide Decider, ne
 	if err != nil {
 		return res, nil, 0, err
 	}
-	defer func() {
-		// Any failure before the COMMIT ran leaves the transaction open.
-		if c.Conn().PgConn().TxStatus() != 'I' {
-			if _, err := c.Exec(context.Background(), "rollback"); err != nil {
-				c.Conn().Close(context.Background())
-			}
-		}
-		c.Release()
-	}()
+	defer releaseAfterTx(c)
 	var row voteRow
 	var b pgx.Batch
 	b.Queue("begin")
@@ -124,27 +122,35 @@ func (s *Store) voteAndCommit(ctx context.Context, v NewVote, decide Decider, ne
 	if res, err = row.result(); err != nil {
 		return res, nil, 0, err
 	}
-	write, err := finishVote(ctx, c, v, decide, &res, &row)
-	if err != nil {
+	var write pgx.Batch
+	if err := finishVote(ctx, c, v, decide, &res, &row, &write); err != nil {
 		return res, nil, 0, err
 	}
 	var r claimRound
 	if next != nil {
-		r.queue(write, *next, next.Exclude)
+		r.queue(&write, *next, next.Exclude)
 	}
 	write.Queue("commit")
-	if err := c.SendBatch(ctx, write).Close(); err != nil {
+	if err := c.SendBatch(ctx, &write).Close(); err != nil {
 		return res, nil, 0, err
 	}
-	switch {
-	case c.Conn().PgConn().TxStatus() != 'I':
+	if c.Conn().PgConn().TxStatus() != 'I' {
 		return res, nil, 0, errors.New("the vote's transaction did not end at its COMMIT")
-	case !r.found: // nothing claimed, or nothing asked for
-		return res, nil, 0, nil
-	case !r.keep():
-		return res, nil, r.itemID, nil
 	}
-	return res, &r.c, 0, nil
+	claim, retake = r.outcome()
+	return res, claim, retake, nil
+}
+
+// releaseAfterTx returns a connection to the pool after a transaction run
+// by hand: any failure before its COMMIT ran leaves the transaction open,
+// and it is rolled back (or the connection closed) first.
+func releaseAfterTx(c *pgxpool.Conn) {
+	if c.Conn().PgConn().TxStatus() != 'I' {
+		if _, err := c.Exec(context.Background(), "rollback"); err != nil {
+			c.Conn().Close(context.Background())
+		}
+	}
+	c.Release()
 }
 
 // retakeClaim takes back a committed claim on item that must not stand
@@ -178,7 +184,11 @@ func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, out **Claim) 
 // voteSQL deletes the claim, inserts the vote and locks the item row (the
 // count goes up with the item's new status, in one row version). A paused
 // or blocked member's claim does not match, so their vote is refused like
-// one without a claim.
+// one without a claim. A vote id stored before deletes no claim either,
+// so a vote that is not inserted leaves nothing behind, even in a
+// transaction shared with other votes (votebatch.go). The vote's time is
+// the clock's, not the transaction's start, so the votes of one batch keep
+// the order they were written in.
 //
 // It also reads what deciding the item's new state needs: its gold answer,
 // the project's last fit, and its labelled votes with the new one merged
@@ -193,14 +203,15 @@ WITH lbl AS (
 ), c AS (
 	DELETE FROM claims WHERE item_id = $3 AND labeller_id = $4 AND project_id = $2
 		AND ($7::text IS NULL OR EXISTS (SELECT 1 FROM lbl))
+		AND NOT EXISTS (SELECT 1 FROM votes WHERE id = $1)
 		AND NOT EXISTS (SELECT 1 FROM project_members m
 			WHERE m.project_id = $2 AND m.user_id = $4 AND m.status <> 'active')
 	RETURNING item_id
 ), ins AS (
-	INSERT INTO votes (id, project_id, item_id, labeller_id, label_id, seconds)
-	SELECT $1, $2, $3, $4, coalesce($5, (SELECT id FROM lbl)), $6 FROM c
+	INSERT INTO votes (id, project_id, item_id, labeller_id, label_id, seconds, created_at)
+	SELECT $1, $2, $3, $4, coalesce($5, (SELECT id FROM lbl)), $6, clock_timestamp() FROM c
 	ON CONFLICT (id) DO NOTHING
-	RETURNING label_id
+	RETURNING label_id, created_at
 ), lock AS (
 	SELECT id, vote_count FROM items
 	WHERE id = $3 AND EXISTS (SELECT 1 FROM ins WHERE label_id IS NOT NULL)
@@ -216,7 +227,7 @@ FROM (
 	SELECT labeller_id, label_id, created_at, id FROM votes
 	WHERE item_id = $3 AND label_id IS NOT NULL AND EXISTS (SELECT 1 FROM lock)
 	UNION ALL
-	SELECT $4, label_id, now(), $1::uuid FROM ins WHERE label_id IS NOT NULL
+	SELECT $4, label_id, created_at, $1::uuid FROM ins WHERE label_id IS NOT NULL
 ) x`
 
 // voteRow is voteSQL's answer.
@@ -261,29 +272,28 @@ func (r *voteRow) result() (VoteResult, error) {
 	return VoteResult{VotedLabel: r.label}, nil
 }
 
-// finishVote reads what the stored vote changes and returns, unsent, the
-// statements that write it, so they can share a round trip with the claim.
-func finishVote(ctx context.Context, tx querier, v NewVote, decide Decider, res *VoteResult, row *voteRow) (*pgx.Batch, error) {
-	var b pgx.Batch
+// finishVote reads what the stored vote changes and queues, unsent, the
+// statements that write it in b, so they can share a round trip with the claim.
+func finishVote(ctx context.Context, tx querier, v NewVote, decide Decider, res *VoteResult, row *voteRow, b *pgx.Batch) error {
 	if res.VotedLabel == nil {
 		// "Can't tell" changes no count and no consensus, but the gold
 		// answer still decides the feedback.
 		res.GoldLabel = row.gold
-		return &b, nil
+		return nil
 	}
 	iv, fresh := row.itemVotes(ctx, tx, v.ProjectID, v.ItemID)
 	if !fresh {
 		var err error
 		if iv, err = itemVotes(ctx, tx, v.ProjectID, v.ItemID); err != nil {
-			return nil, err
+			return err
 		}
 	}
 	sql, args, err := itemDecision(ctx, v.ProjectID, v.ItemID, iv, decide, &res.GoldLabel, 1)
 	if err != nil {
-		return nil, err
+		return err
 	}
 	b.Queue(sql, args...)
-	return &b, nil
+	return nil
 }
 
 // repeatedVote answers a vote that was not inserted: a retry of a stored
