@@ -17,6 +17,7 @@ type BatchOutcome struct {
 	Claim  *Claim
 	Retake int64
 	Err    error
+	Alone  bool // not written: to be tried in a transaction of its own
 }
 
 // ErrNotInserted is the unexported errNotInserted.
@@ -34,7 +35,7 @@ func (s *Store) VoteBatchTx(ctx context.Context, votes []BatchVote) ([]BatchOutc
 	}
 	res := make([]BatchOutcome, len(outs))
 	for i, o := range outs {
-		res[i] = BatchOutcome{Result: o.res, Claim: o.claim, Retake: o.retake, Err: o.err}
+		res[i] = BatchOutcome{Result: o.res, Claim: o.claim, Retake: o.retake, Err: o.err, Alone: o.alone}
 	}
 	return res, nil
 }

@@ -175,7 +175,8 @@ func (s *Store) runVoteBatch(jobs []*voteJob) {
 // with every vote, then every item's new state and every claim with its
 // check, and COMMIT. A vote that was not stored (unknown label, repeated
 // id, no claim) wrote nothing, thanks to voteSQL's guards, and gets its
-// error while the others go on.
+// error while the others go on; one whose item another transaction holds
+// wrote nothing either and is made alone (batchVoteSQL).
 func (s *Store) voteBatchTx(ctx context.Context, jobs []*voteJob) ([]voteOutcome, error) {
 	c, err := s.pool.Acquire(ctx)
 	if err != nil {
@@ -186,7 +187,7 @@ func (s *Store) voteBatchTx(ctx context.Context, jobs []*voteJob) ([]voteOutcome
 	var b pgx.Batch
 	b.Queue("begin")
 	for i, j := range jobs {
-		rows[i].queue(&b, j.v)
+		rows[i].queue(&b, batchVoteSQL, j.v)
 	}
 	if err := c.SendBatch(ctx, &b).Close(); err != nil {
 		return nil, err
@@ -195,6 +196,10 @@ func (s *Store) voteBatchTx(ctx context.Context, jobs []*voteJob) ([]voteOutcome
 	rounds := make([]claimRound, len(jobs))
 	var write pgx.Batch
 	for i, j := range jobs {
+		if rows[i].skipped {
+			outs[i].alone = true
+			continue
+		}
 		res, err := rows[i].result()
 		if err != nil {
 			outs[i].err = err

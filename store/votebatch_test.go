@@ -166,6 +166,60 @@ func TestVoteBatchFailsAsAWhole(t *testing.T) {
 	}
 }
 
+// TestVoteBatchPassesOverLockedItems: a batch does not wait for an item
+// another transaction holds (it would keep its other items locked all
+// that time); that vote writes nothing and is made alone, where it waits.
+func TestVoteBatchPassesOverLockedItems(t *testing.T) {
+	ctx := context.Background()
+	f := newFixture(t)
+	items := addItems(t, f.s, f.project.ID, 2)
+	x, y := items[0], items[1]
+	ana, ben := f.labellers[0].ID, f.labellers[1].ID
+	glass := f.labels["glass"].ID
+	f.claimFor(t, x, ana)
+	f.claimFor(t, y, ben)
+	holder, err := f.s.Pool().Begin(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	defer holder.Rollback(ctx)
+	if _, err := holder.Exec(ctx, `SELECT 1 FROM items WHERE id = $1 FOR UPDATE`, x); err != nil {
+		t.Fatal(err)
+	}
+	onX := store.NewVote{ID: batchVoteID(1), ProjectID: f.project.ID, ItemID: x, LabellerID: ana, LabelID: &glass}
+	onY := store.NewVote{ID: batchVoteID(2), ProjectID: f.project.ID, ItemID: y, LabellerID: ben, LabelID: &glass}
+	bounded, cancel := context.WithTimeout(ctx, 5*time.Second)
+	defer cancel()
+	outs, err := f.s.VoteBatchTx(bounded, []store.BatchVote{{Vote: onX, Decide: countDecider}, {Vote: onY, Decide: countDecider}})
+	if err != nil {
+		t.Fatalf("batch with a held item: %v (it must not wait for the item)", err)
+	}
+	if !outs[0].Alone || outs[1].Alone || outs[1].Err != nil {
+		t.Fatalf("outcomes %+v; want the vote on the held item alone and the other stored", outs)
+	}
+	var anaVotes, anaClaims, benVotes int
+	f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM votes WHERE labeller_id = $1`, ana).Scan(&anaVotes)
+	f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM claims WHERE labeller_id = $1 AND item_id = $2`, ana, x).Scan(&anaClaims)
+	f.s.Pool().QueryRow(ctx, `SELECT count(*) FROM votes WHERE labeller_id = $1`, ben).Scan(&benVotes)
+	if anaVotes != 0 || anaClaims != 1 || benVotes != 1 {
+		t.Fatalf("ana: %d votes, %d claims on x (want 0, 1); ben: %d votes (want 1)", anaVotes, anaClaims, benVotes)
+	}
+	// Alone, the vote waits for the holder and is then stored.
+	done := make(chan error, 1)
+	go func() {
+		_, err := f.s.RecordVote(ctx, onX, countDecider)
+		done <- err
+	}()
+	waitForLockWaiter(t, f.s)
+	holder.Rollback(ctx)
+	if err := <-done; err != nil {
+		t.Fatalf("vote on x once the item is free: %v", err)
+	}
+	if it, _ := f.s.Item(ctx, f.project.ID, x); it.VoteCount != 1 {
+		t.Errorf("item x: %d votes, want 1", it.VoteCount)
+	}
+}
+
 // TestSplitVoteBatch: one vote per labeller per batch (a second waits for
 // the next batch), votes sorted by item, and votes whose callers gave up
 // answered at once.

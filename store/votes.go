@@ -115,7 +115,7 @@ func (s *Store) voteAndCommit(ctx context.Context, v NewVote, decide Decider, ne
 	var row voteRow
 	var b pgx.Batch
 	b.Queue("begin")
-	row.queue(&b, v)
+	row.queue(&b, voteSQL, v)
 	if err := c.SendBatch(ctx, &b).Close(); err != nil {
 		return res, nil, 0, err
 	}
@@ -181,8 +181,9 @@ func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, out **Claim) 
 	return nil
 }
 
-// voteSQL deletes the claim, inserts the vote and locks the item row (the
-// count goes up with the item's new status, in one row version). A paused
+// voteSQL locks the item row (for a labelled vote; "can't tell" changes
+// no count), deletes the claim and inserts the vote (the count goes up
+// with the item's new status, in one row version). A paused
 // or blocked member's claim does not match, so their vote is refused like
 // one without a claim. A vote id stored before deletes no claim either,
 // so a vote that is not inserted leaves nothing behind, even in a
@@ -197,12 +198,28 @@ func claimOrNone(ctx context.Context, tx pgx.Tx, req ClaimRequest, out **Claim) 
 // the latest committed. When the two disagree, a vote on the item
 // committed (or was taken back) while this one waited, and the caller
 // reads the votes again (itemVotes).
-const voteSQL = `
+var voteSQL = voteSQLLocking("FOR UPDATE")
+
+// batchVoteSQL is voteSQL for a vote in a batch (votebatch.go): when
+// another transaction holds the item, it writes nothing and answers
+// skipped, and the vote is made alone. A batch waiting for one item would
+// hold every other item it has locked, and the votes on those would wait
+// behind it.
+var batchVoteSQL = voteSQLLocking("FOR UPDATE SKIP LOCKED")
+
+// voteSQLLocking writes voteSQL with the given lock on the item row.
+func voteSQLLocking(lock string) string {
+	return `
 WITH lbl AS (
 	SELECT id FROM taxonomy_nodes WHERE project_id = $2 AND key = $7
+), lock AS (
+	SELECT id, vote_count FROM items
+	WHERE id = $3 AND ($5::bigint IS NOT NULL OR $7::text IS NOT NULL)
+	` + lock + `
 ), c AS (
 	DELETE FROM claims WHERE item_id = $3 AND labeller_id = $4 AND project_id = $2
 		AND ($7::text IS NULL OR EXISTS (SELECT 1 FROM lbl))
+		AND ($5::bigint IS NULL AND $7::text IS NULL OR EXISTS (SELECT 1 FROM lock))
 		AND NOT EXISTS (SELECT 1 FROM votes WHERE id = $1)
 		AND NOT EXISTS (SELECT 1 FROM project_members m
 			WHERE m.project_id = $2 AND m.user_id = $4 AND m.status <> 'active')
@@ -212,27 +229,26 @@ WITH lbl AS (
 	SELECT $1, $2, $3, $4, coalesce($5, (SELECT id FROM lbl)), $6, clock_timestamp() FROM c
 	ON CONFLICT (id) DO NOTHING
 	RETURNING label_id, created_at
-), lock AS (
-	SELECT id, vote_count FROM items
-	WHERE id = $3 AND EXISTS (SELECT 1 FROM ins WHERE label_id IS NOT NULL)
-	FOR UPDATE
 )
 SELECT EXISTS (SELECT 1 FROM ins), (SELECT label_id FROM ins),
 	$7::text IS NULL OR EXISTS (SELECT 1 FROM lbl), (SELECT vote_count FROM lock),
+	($5::bigint IS NOT NULL OR $7::text IS NOT NULL) AND NOT EXISTS (SELECT 1 FROM lock),
 	(SELECT label_id FROM gold_answers WHERE item_id = $3),
 	(SELECT fitted_at FROM project_stats WHERE project_id = $2),
 	coalesce(array_agg(x.labeller_id ORDER BY x.created_at, x.id), '{}'),
 	coalesce(array_agg(x.label_id ORDER BY x.created_at, x.id), '{}')
 FROM (
 	SELECT labeller_id, label_id, created_at, id FROM votes
-	WHERE item_id = $3 AND label_id IS NOT NULL AND EXISTS (SELECT 1 FROM lock)
+	WHERE item_id = $3 AND label_id IS NOT NULL AND EXISTS (SELECT 1 FROM ins WHERE label_id IS NOT NULL)
 	UNION ALL
 	SELECT $4, label_id, created_at, $1::uuid FROM ins WHERE label_id IS NOT NULL
 ) x`
+}
 
 // voteRow is voteSQL's answer.
 type voteRow struct {
 	inserted, labelKnown bool
+	skipped              bool // batchVoteSQL found the item locked and wrote nothing
 	label                *int64
 	locked               *int   // the locked item's committed count; nil without a lock
 	gold                 *int64 // the item's gold answer
@@ -240,10 +256,10 @@ type voteRow struct {
 	labellers, labels    []int64 // the item's labelled votes, the new one included
 }
 
-func (r *voteRow) queue(b *pgx.Batch, v NewVote) {
-	b.Queue(voteSQL, v.ID, v.ProjectID, v.ItemID, v.LabellerID, v.LabelID, v.Seconds, v.LabelKey).QueryRow(func(row pgx.Row) error {
+func (r *voteRow) queue(b *pgx.Batch, sql string, v NewVote) {
+	b.Queue(sql, v.ID, v.ProjectID, v.ItemID, v.LabellerID, v.LabelID, v.Seconds, v.LabelKey).QueryRow(func(row pgx.Row) error {
 		*r = voteRow{}
-		return row.Scan(&r.inserted, &r.label, &r.labelKnown, &r.locked, &r.gold, &r.fitted, &r.labellers, &r.labels)
+		return row.Scan(&r.inserted, &r.label, &r.labelKnown, &r.locked, &r.skipped, &r.gold, &r.fitted, &r.labellers, &r.labels)
 	})
 }
 
