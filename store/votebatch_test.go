@@ -129,16 +129,21 @@ func TestVoteBatch(t *testing.T) {
 	}
 }
 
+// twoOfEach makes a fixture with two items x and y; ana and ben are its
+// labellers and glass a label.
+func twoOfEach(t *testing.T) (f *fixture, x, y, ana, ben, glass int64) {
+	t.Helper()
+	f = newFixture(t)
+	items := addItems(t, f.s, f.project.ID, 2)
+	return f, items[0], items[1], f.labellers[0].ID, f.labellers[1].ID, f.labels["glass"].ID
+}
+
 // TestVoteBatchFailsAsAWhole: a vote whose statement raises aborts its
 // batch, which then stores nothing; each vote tried alone then fares as
 // it would have without batching.
 func TestVoteBatchFailsAsAWhole(t *testing.T) {
 	ctx := context.Background()
-	f := newFixture(t)
-	items := addItems(t, f.s, f.project.ID, 2)
-	x, y := items[0], items[1]
-	ana, ben := f.labellers[0].ID, f.labellers[1].ID
-	glass := f.labels["glass"].ID
+	f, x, y, ana, ben, glass := twoOfEach(t)
 	f.claimFor(t, y, ben)
 	if _, err := f.s.RecordVote(ctx, store.NewVote{ID: batchVoteID(1), ProjectID: f.project.ID, ItemID: y, LabellerID: ben, LabelID: &glass}, countDecider); err != nil {
 		t.Fatal(err)
@@ -171,11 +176,7 @@ func TestVoteBatchFailsAsAWhole(t *testing.T) {
 // that time); that vote writes nothing and is made alone, where it waits.
 func TestVoteBatchPassesOverLockedItems(t *testing.T) {
 	ctx := context.Background()
-	f := newFixture(t)
-	items := addItems(t, f.s, f.project.ID, 2)
-	x, y := items[0], items[1]
-	ana, ben := f.labellers[0].ID, f.labellers[1].ID
-	glass := f.labels["glass"].ID
+	f, x, y, ana, ben, glass := twoOfEach(t)
 	f.claimFor(t, x, ana)
 	f.claimFor(t, y, ben)
 	holder, err := f.s.Pool().Begin(ctx)
