@@ -13,11 +13,11 @@ type BatchVote struct {
 
 // BatchOutcome is what the batch answered for one vote.
 type BatchOutcome struct {
-	Result VoteResult
-	Claim  *Claim
-	Retake int64
-	Err    error
-	Alone  bool // not written: to be tried in a transaction of its own
+	Result  VoteResult
+	Claim   *Claim
+	Retake  int64
+	Err     error
+	Skipped bool // not written: its item was held elsewhere
 }
 
 // ErrNotInserted is the unexported errNotInserted.
@@ -35,7 +35,7 @@ func (s *Store) VoteBatchTx(ctx context.Context, votes []BatchVote) ([]BatchOutc
 	}
 	res := make([]BatchOutcome, len(outs))
 	for i, o := range outs {
-		res[i] = BatchOutcome{Result: o.res, Claim: o.claim, Retake: o.retake, Err: o.err, Alone: o.alone}
+		res[i] = BatchOutcome{Result: o.res, Claim: o.claim, Retake: o.retake, Err: o.err, Skipped: o.skipped}
 	}
 	return res, nil
 }

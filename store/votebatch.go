@@ -39,16 +39,22 @@ type voteJob struct {
 	decide Decider
 	next   *ClaimRequest
 	done   chan voteOutcome // buffered: a worker never waits on a caller
+	passed int              // batches that passed over its item (held elsewhere)
 }
+
+// maxPassedOver is how many batches may pass over a vote's item before
+// the vote is made alone, where it waits for the item.
+const maxPassedOver = 2
 
 // voteOutcome is what voteAndCommit would have returned for the job, or
 // alone when the batch failed and the vote must be tried by itself.
 type voteOutcome struct {
-	res    VoteResult
-	claim  *Claim
-	retake int64
-	err    error
-	alone  bool
+	res     VoteResult
+	claim   *Claim
+	retake  int64
+	err     error
+	alone   bool
+	skipped bool // its item was held elsewhere: nothing written
 }
 
 // voteBatcher holds the queue of votes and starts its workers on first use.
@@ -120,7 +126,7 @@ func (s *Store) voteWorker() {
 			}
 		}
 		batch, carry = splitVoteBatch(batch)
-		s.runVoteBatch(batch)
+		carry = append(s.runVoteBatch(batch), carry...)
 	}
 }
 
@@ -154,21 +160,30 @@ func splitVoteBatch(jobs []*voteJob) (batch, carry []*voteJob) {
 	return batch, carry
 }
 
-// runVoteBatch writes the batch and answers each vote.
-func (s *Store) runVoteBatch(jobs []*voteJob) {
+// runVoteBatch writes the batch and answers each vote, except those whose
+// item another transaction held: it returns them for the next batch (or,
+// passed over too often, answers them to be made alone).
+func (s *Store) runVoteBatch(jobs []*voteJob) (again []*voteJob) {
 	if len(jobs) == 0 {
-		return
+		return nil
 	}
 	ctx, cancel := context.WithTimeout(context.Background(), voteBatchTimeout)
 	defer cancel()
 	outs, err := s.voteBatchTx(ctx, jobs)
 	for i, j := range jobs {
-		if err != nil {
+		switch {
+		case err != nil:
 			j.done <- voteOutcome{alone: true}
-			continue
+		case outs[i].skipped && j.passed < maxPassedOver:
+			j.passed++
+			again = append(again, j)
+		case outs[i].skipped:
+			j.done <- voteOutcome{alone: true}
+		default:
+			j.done <- outs[i]
 		}
-		j.done <- outs[i]
 	}
+	return again
 }
 
 // voteBatchTx is voteAndCommit for several votes in one transaction: BEGIN
@@ -176,7 +191,7 @@ func (s *Store) runVoteBatch(jobs []*voteJob) {
 // check, and COMMIT. A vote that was not stored (unknown label, repeated
 // id, no claim) wrote nothing, thanks to voteSQL's guards, and gets its
 // error while the others go on; one whose item another transaction holds
-// wrote nothing either and is made alone (batchVoteSQL).
+// wrote nothing either and is tried again (batchVoteSQL, runVoteBatch).
 func (s *Store) voteBatchTx(ctx context.Context, jobs []*voteJob) ([]voteOutcome, error) {
 	c, err := s.pool.Acquire(ctx)
 	if err != nil {
@@ -197,7 +212,7 @@ func (s *Store) voteBatchTx(ctx context.Context, jobs []*voteJob) ([]voteOutcome
 	var write pgx.Batch
 	for i, j := range jobs {
 		if rows[i].skipped {
-			outs[i].alone = true
+			outs[i].skipped = true
 			continue
 		}
 		res, err := rows[i].result()
