@@ -19,6 +19,17 @@ type VotePolicy struct {
 	GoldFeedback     bool
 }
 
+// The ranges a lead may set, shared by the command line and the setup
+// page so a project made on one can be saved unchanged on the other. The
+// projects table's checks are wider (a confidence target strictly
+// between 0 and 1, any rate that is not negative); these are the sensible
+// part of them.
+const (
+	MinConfidenceTarget = 0.5   // below this a consensus could lose to another label
+	MaxConfidenceTarget = 0.999 // above this hardly any item is ever done
+	MaxPayRate          = 1e6
+)
+
 // PayModel says how labellers are paid.
 type PayModel struct {
 	Model        string // per_vote or per_hour

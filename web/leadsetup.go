@@ -159,7 +159,7 @@ func (s *Server) savePolicy(w http.ResponseWriter, r *http.Request) error {
 	pol := store.VotePolicy{
 		MinVotes:         int(formNumber(errs, f, "min_votes", "Minimum votes", 1, 50, true)),
 		MaxVotes:         int(formNumber(errs, f, "max_votes", "Maximum votes", 1, 50, true)),
-		ConfidenceTarget: formNumber(errs, f, "confidence_target", "Confidence target", 0.5, 0.999, false),
+		ConfidenceTarget: formNumber(errs, f, "confidence_target", "Confidence target", store.MinConfidenceTarget, store.MaxConfidenceTarget, false),
 		GoldRate:         formNumber(errs, f, "gold_rate", "Gold rate", 0, 0.5, false),
 		ClaimSeconds:     int(formNumber(errs, f, "claim_seconds", "Claim lifetime", 10, 86400, true)),
 		AccuracyFloor:    formNumber(errs, f, "accuracy_floor", "Labeller accuracy floor", 0, 1, false),
@@ -189,7 +189,7 @@ func (s *Server) savePay(w http.ResponseWriter, r *http.Request) error {
 	if pay.Model != store.PayPerVote && pay.Model != store.PayPerHour {
 		errs.add("pay_model", "Pay model: choose per vote or per hour.")
 	}
-	pay.Rate = formNumber(errs, f, "pay_rate", "Rate", 0, 1e6, false)
+	pay.Rate = formNumber(errs, f, "pay_rate", "Rate", 0, store.MaxPayRate, false)
 	if len(pay.Currency) != 3 || strings.Trim(pay.Currency, "ABCDEFGHIJKLMNOPQRSTUVWXYZ") != "" {
 		errs.add("currency", "Currency: give a three-letter ISO 4217 code such as EUR.")
 	}

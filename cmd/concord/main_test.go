@@ -111,11 +111,14 @@ func TestProjectCreateChecksPolicyFlags(t *testing.T) {
 	}{
 		{[]string{"--min-votes", "5", "--max-votes", "3"}, "--max-votes 3: must be at least --min-votes (5)"},
 		{[]string{"--min-votes", "0"}, "--min-votes 0: must be between 1 and 50"},
-		{[]string{"--target", "1"}, "--target 1: must be above 0 and below 1"},
+		{[]string{"--target", "1"}, "--target 1: must be between 0.5 and 0.999"},
+		// The setup page's range, so the page can save what the command made.
+		{[]string{"--target", "0.4"}, "--target 0.4: must be between 0.5 and 0.999"},
 		{[]string{"--gold-rate", "0.6"}, "--gold-rate 0.6: must be between 0 and 0.5"},
 		{[]string{"--claim-seconds", "5"}, "--claim-seconds 5: must be between 10 and 86400"},
 		{[]string{"--pay-model", "per_item"}, `--pay-model "per_item": must be per_vote or per_hour`},
-		{[]string{"--pay-rate", "-1"}, "--pay-rate -1: must not be negative"},
+		{[]string{"--pay-rate", "-1"}, "--pay-rate -1: must be between 0 and 1e+06"},
+		{[]string{"--pay-rate", "2e6"}, "--pay-rate 2e+06: must be between 0 and 1e+06"},
 		{[]string{"--currency", "EURO"}, `--currency "EURO"`},
 	}
 	for i, c := range cases {

@@ -28,7 +28,7 @@ func runProject(ctx context.Context, e *env, args []string) error {
 	taxFile := fs.String("taxonomy", "", "taxonomy file to import into the new project")
 	minVotes := fs.Int("min-votes", def.MinVotes, "votes every item gets before it can be done")
 	maxVotes := fs.Int("max-votes", def.MaxVotes, "votes after which an unsure item goes to review")
-	target := fs.Float64("target", def.ConfidenceTarget, "consensus confidence at which an item is done")
+	target := fs.Float64("target", def.ConfidenceTarget, "consensus confidence at which an item is done (0.5 to 0.999)")
 	goldRate := fs.Float64("gold-rate", def.GoldRate, "share of claims that are gold items")
 	claim := fs.Int("claim-seconds", def.ClaimSeconds, "how long a claimed item stays reserved")
 	floor := fs.Float64("accuracy-floor", def.AccuracyFloor, "gold accuracy under which a labeller is paused")
@@ -104,8 +104,8 @@ func checkPolicyFlags(p store.Project) error {
 		return usagef("project create: --max-votes %d: must be between 1 and 50", pol.MaxVotes)
 	case pol.MaxVotes < pol.MinVotes:
 		return usagef("project create: --max-votes %d: must be at least --min-votes (%d)", pol.MaxVotes, pol.MinVotes)
-	case !(pol.ConfidenceTarget > 0 && pol.ConfidenceTarget < 1):
-		return usagef("project create: --target %g: must be above 0 and below 1", pol.ConfidenceTarget)
+	case !(pol.ConfidenceTarget >= store.MinConfidenceTarget && pol.ConfidenceTarget <= store.MaxConfidenceTarget):
+		return usagef("project create: --target %g: must be between %g and %g", pol.ConfidenceTarget, store.MinConfidenceTarget, store.MaxConfidenceTarget)
 	case !(pol.GoldRate >= 0 && pol.GoldRate <= 0.5):
 		return usagef("project create: --gold-rate %g: must be between 0 and 0.5", pol.GoldRate)
 	case pol.ClaimSeconds < 10 || pol.ClaimSeconds > 86400:
@@ -114,8 +114,8 @@ func checkPolicyFlags(p store.Project) error {
 		return usagef("project create: --accuracy-floor %g: must be between 0 and 1", pol.AccuracyFloor)
 	case pay.Model != store.PayPerVote && pay.Model != store.PayPerHour:
 		return usagef("project create: --pay-model %q: must be per_vote or per_hour", pay.Model)
-	case !(pay.Rate >= 0):
-		return usagef("project create: --pay-rate %g: must not be negative", pay.Rate)
+	case !(pay.Rate >= 0 && pay.Rate <= store.MaxPayRate):
+		return usagef("project create: --pay-rate %g: must be between 0 and %g", pay.Rate, store.MaxPayRate)
 	case len(pay.Currency) != 3 || strings.Trim(pay.Currency, "ABCDEFGHIJKLMNOPQRSTUVWXYZ") != "":
 		return usagef("project create: --currency %q: must be a three-letter ISO 4217 code such as EUR", pay.Currency)
 	}
