@@ -3,6 +3,7 @@ package store
 import (
 	"context"
 	"errors"
+	"fmt"
 	"slices"
 	"sync"
 	"time"
@@ -169,7 +170,7 @@ func (s *Store) runVoteBatch(jobs []*voteJob) (again []*voteJob) {
 	}
 	ctx, cancel := context.WithTimeout(context.Background(), voteBatchTimeout)
 	defer cancel()
-	outs, err := s.voteBatchTx(ctx, jobs)
+	outs, err := s.safeVoteBatchTx(ctx, jobs)
 	for i, j := range jobs {
 		switch {
 		case err != nil:
@@ -184,6 +185,18 @@ func (s *Store) runVoteBatch(jobs []*voteJob) (again []*voteJob) {
 		}
 	}
 	return again
+}
+
+// safeVoteBatchTx is voteBatchTx with a panic (in a Decider, say) turned
+// into the batch's failure: the votes are then made alone, in their
+// requests' goroutines, where the server's recovery answers the panic.
+func (s *Store) safeVoteBatchTx(ctx context.Context, jobs []*voteJob) (outs []voteOutcome, err error) {
+	defer func() {
+		if r := recover(); r != nil {
+			outs, err = nil, fmt.Errorf("vote batch: panic: %v", r)
+		}
+	}()
+	return s.voteBatchTx(ctx, jobs)
 }
 
 // voteBatchTx is voteAndCommit for several votes in one transaction: BEGIN
@@ -224,7 +237,13 @@ func (s *Store) voteBatchTx(ctx context.Context, jobs []*voteJob) ([]voteOutcome
 			return nil, err
 		}
 		outs[i].res = res
-		if j.next != nil {
+	}
+	// Every item's new state goes before any claim: a claim sees the
+	// batch's items (locked by this very transaction, so not passed over)
+	// with their votes' claims already gone, and must see their counts
+	// after those votes too, or it takes a slot a vote has just filled.
+	for i, j := range jobs {
+		if j.next != nil && outs[i].err == nil && !outs[i].skipped {
 			rounds[i].queue(&write, *j.next, j.next.Exclude)
 		}
 	}

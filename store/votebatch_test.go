@@ -223,6 +223,42 @@ func TestVoteBatchPassesOverLockedItems(t *testing.T) {
 	}
 }
 
+// TestVoteBatchClaimsAfterItsVotes: a claim in a batch sees the counts
+// left by every vote of the batch. y needs one more vote and comes first
+// in priority; ben's vote on y finishes it, so ana, voting on x in the
+// same batch, must not be handed y.
+func TestVoteBatchClaimsAfterItsVotes(t *testing.T) {
+	ctx := context.Background()
+	f, x, y, ana, ben, glass := twoOfEach(t)
+	cy := makeLabellers(t, f, "cy", 1)[0]
+	f.claimFor(t, y, cy)
+	if _, err := f.s.RecordVote(ctx, store.NewVote{ID: batchVoteID(7), ProjectID: f.project.ID, ItemID: y, LabellerID: cy, LabelID: &glass}, countDecider); err != nil {
+		t.Fatal(err)
+	}
+	f.exec(t, `UPDATE items SET priority = CASE WHEN id = $1 THEN 100 ELSE 0 END WHERE id IN ($1, $2)`, y, x)
+	f.claimFor(t, x, ana)
+	f.claimFor(t, y, ben)
+	next := func(l int64) *store.ClaimRequest {
+		return &store.ClaimRequest{ProjectID: f.project.ID, LabellerID: l, Lifetime: time.Minute}
+	}
+	outs, err := f.s.VoteBatchTx(ctx, []store.BatchVote{
+		{Vote: store.NewVote{ID: batchVoteID(1), ProjectID: f.project.ID, ItemID: x, LabellerID: ana, LabelID: &glass}, Decide: countDecider, Next: next(ana)},
+		{Vote: store.NewVote{ID: batchVoteID(2), ProjectID: f.project.ID, ItemID: y, LabellerID: ben, LabelID: &glass}, Decide: countDecider, Next: next(ben)},
+	})
+	if err != nil {
+		t.Fatal(err)
+	}
+	if c := outs[0].Claim; c != nil && c.Item.ID == y {
+		t.Errorf("ana was handed item %d, which ben's vote in the same batch finished", y)
+	}
+	var status string
+	var needed, live int
+	f.s.Pool().QueryRow(ctx, `SELECT status, votes_needed, (SELECT count(*) FROM claims WHERE item_id = $1 AND expires_at > now()) FROM items WHERE id = $1`, y).Scan(&status, &needed, &live)
+	if status != "done" || live > needed {
+		t.Errorf("item y: %s, %d live claims, %d votes needed; want done with no claims", status, live, needed)
+	}
+}
+
 // TestSplitVoteBatch: one vote per labeller per batch (a second waits for
 // the next batch), votes sorted by item, and votes whose callers gave up
 // answered at once.
