@@ -10,12 +10,29 @@ import (
 	"time"
 
 	"github.com/concord-labs/concord/store"
+	"github.com/jackc/pgx/v5"
 )
 
 // batchVoteID makes a vote UUID unique to this run of the test, so the
 // tests also pass with -count above 1 on one database.
 func batchVoteID(n int) string {
 	return fmt.Sprintf("ba7c0000-%04x-4a2b-9c3d-%012x", n, time.Now().UnixNano()&0xffffffffffff)
+}
+
+// holdItem opens a transaction holding the item's row lock, as a vote on
+// it does; it is rolled back at the test's end unless committed first.
+func (f *fixture) holdItem(t *testing.T, item int64) pgx.Tx {
+	t.Helper()
+	ctx := context.Background()
+	tx, err := f.s.Pool().Begin(ctx)
+	if err != nil {
+		t.Fatal(err)
+	}
+	t.Cleanup(func() { tx.Rollback(ctx) })
+	if _, err := tx.Exec(ctx, `SELECT 1 FROM items WHERE id = $1 FOR UPDATE`, item); err != nil {
+		t.Fatal(err)
+	}
+	return tx
 }
 
 func (f *fixture) claimFor(t *testing.T, item, labeller int64) {
@@ -180,14 +197,7 @@ func TestVoteBatchPassesOverLockedItems(t *testing.T) {
 	f, x, y, ana, ben, glass := twoOfEach(t)
 	f.claimFor(t, x, ana)
 	f.claimFor(t, y, ben)
-	holder, err := f.s.Pool().Begin(ctx)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer holder.Rollback(ctx)
-	if _, err := holder.Exec(ctx, `SELECT 1 FROM items WHERE id = $1 FOR UPDATE`, x); err != nil {
-		t.Fatal(err)
-	}
+	holder := f.holdItem(t, x)
 	onX := store.NewVote{ID: batchVoteID(1), ProjectID: f.project.ID, ItemID: x, LabellerID: ana, LabelID: &glass}
 	onY := store.NewVote{ID: batchVoteID(2), ProjectID: f.project.ID, ItemID: y, LabellerID: ben, LabelID: &glass}
 	bounded, cancel := context.WithTimeout(ctx, 5*time.Second)

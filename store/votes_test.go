@@ -232,14 +232,7 @@ func TestVoteSeesVoteCommittedWhileWaiting(t *testing.T) {
 	}
 	// Someone else's vote, committed while ben's vote waits on the row:
 	// written by hand in a transaction that holds the item row.
-	tx, err := f.s.Pool().Begin(ctx)
-	if err != nil {
-		t.Fatal(err)
-	}
-	defer tx.Rollback(ctx)
-	if _, err := tx.Exec(ctx, `SELECT 1 FROM items WHERE id = $1 FOR UPDATE`, id); err != nil {
-		t.Fatal(err)
-	}
+	tx := f.holdItem(t, id)
 	if _, err := tx.Exec(ctx, `DELETE FROM claims WHERE item_id = $1 AND labeller_id = $2`, id, ana); err != nil {
 		t.Fatal(err)
 	}
