@@ -29,7 +29,7 @@ func (s *Store) VoteBatchTx(ctx context.Context, votes []BatchVote) ([]BatchOutc
 	for i, v := range votes {
 		jobs[i] = &voteJob{ctx: ctx, v: v.Vote, decide: v.Decide, next: v.Next}
 	}
-	outs, err := s.voteBatchTx(ctx, jobs)
+	outs, err := s.writeVotes(ctx, jobs, batchVoteSQL)
 	if err != nil {
 		return nil, err
 	}

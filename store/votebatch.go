@@ -2,13 +2,10 @@ package store
 
 import (
 	"context"
-	"errors"
 	"fmt"
 	"slices"
 	"sync"
 	"time"
-
-	"github.com/jackc/pgx/v5"
 )
 
 // Votes that arrive together share a transaction. Each vote and each
@@ -187,77 +184,14 @@ func (s *Store) runVoteBatch(jobs []*voteJob) (again []*voteJob) {
 	return again
 }
 
-// safeVoteBatchTx is voteBatchTx with a panic (in a Decider, say) turned
-// into the batch's failure: the votes are then made alone, in their
-// requests' goroutines, where the server's recovery answers the panic.
+// safeVoteBatchTx is writeVotes for a batch, with a panic (in a Decider,
+// say) turned into the batch's failure: the votes are then made alone, in
+// their requests' goroutines, where the server's recovery answers it.
 func (s *Store) safeVoteBatchTx(ctx context.Context, jobs []*voteJob) (outs []voteOutcome, err error) {
 	defer func() {
 		if r := recover(); r != nil {
 			outs, err = nil, fmt.Errorf("vote batch: panic: %v", r)
 		}
 	}()
-	return s.voteBatchTx(ctx, jobs)
-}
-
-// voteBatchTx is voteAndCommit for several votes in one transaction: BEGIN
-// with every vote, then every item's new state and every claim with its
-// check, and COMMIT. A vote that was not stored (unknown label, repeated
-// id, no claim) wrote nothing, thanks to voteSQL's guards, and gets its
-// error while the others go on; one whose item another transaction holds
-// wrote nothing either and is tried again (batchVoteSQL, runVoteBatch).
-func (s *Store) voteBatchTx(ctx context.Context, jobs []*voteJob) ([]voteOutcome, error) {
-	c, err := s.pool.Acquire(ctx)
-	if err != nil {
-		return nil, err
-	}
-	defer releaseAfterTx(c)
-	rows := make([]voteRow, len(jobs))
-	var b pgx.Batch
-	b.Queue("begin")
-	for i, j := range jobs {
-		rows[i].queue(&b, batchVoteSQL, j.v)
-	}
-	if err := c.SendBatch(ctx, &b).Close(); err != nil {
-		return nil, err
-	}
-	outs := make([]voteOutcome, len(jobs))
-	rounds := make([]claimRound, len(jobs))
-	var write pgx.Batch
-	for i, j := range jobs {
-		if rows[i].skipped {
-			outs[i].skipped = true
-			continue
-		}
-		res, err := rows[i].result()
-		if err != nil {
-			outs[i].err = err
-			continue
-		}
-		if err := finishVote(ctx, c, j.v, j.decide, &res, &rows[i], &write); err != nil {
-			return nil, err
-		}
-		outs[i].res = res
-	}
-	// Every item's new state goes before any claim: a claim sees the
-	// batch's items (locked by this very transaction, so not passed over)
-	// with their votes' claims already gone, and must see their counts
-	// after those votes too, or it takes a slot a vote has just filled.
-	for i, j := range jobs {
-		if j.next != nil && outs[i].err == nil && !outs[i].skipped {
-			rounds[i].queue(&write, *j.next, j.next.Exclude)
-		}
-	}
-	write.Queue("commit")
-	if err := c.SendBatch(ctx, &write).Close(); err != nil {
-		return nil, err
-	}
-	if c.Conn().PgConn().TxStatus() != 'I' {
-		return nil, errors.New("the votes' transaction did not end at its COMMIT")
-	}
-	for i := range outs {
-		if outs[i].err == nil {
-			outs[i].claim, outs[i].retake = rounds[i].outcome()
-		}
-	}
-	return outs, nil
+	return s.writeVotes(ctx, jobs, batchVoteSQL)
 }

@@ -98,47 +98,92 @@ func (s *Store) RecordVoteAndClaim(ctx context.Context, v NewVote, decide Decide
 }
 
 // voteAndCommit stores the vote and, when next is not nil, claims the
-// next item, in one transaction whose COMMIT travels with the item's write
-// and the claim with its check. The claim comes last: its FOR UPDATE holds the claimed
-// row to the commit, and labellers voting on that item wait for it.
-// (Claiming first measured slower; a separate transaction costs a second
-// commit.) When the check finds that the claim, already committed, must
-// not stand (it lost an item's last slot to a race, or the labeller's vote
-// on it committed meanwhile), retake names its item and the caller takes
-// it back and claims again.
-func (s *Store) voteAndCommit(ctx context.Context, v NewVote, decide Decider, next *ClaimRequest) (res VoteResult, claim *Claim, retake int64, err error) {
+// next item, in a transaction of its own (writeVotes with voteSQL, which
+// waits for the item). When the check finds that the claim, already
+// committed, must not stand (it lost an item's last slot to a race, or the
+// labeller's vote on it committed meanwhile), retake names its item and
+// the caller takes it back and claims again.
+func (s *Store) voteAndCommit(ctx context.Context, v NewVote, decide Decider, next *ClaimRequest) (VoteResult, *Claim, int64, error) {
+	outs, err := s.writeVotes(ctx, []*voteJob{{v: v, decide: decide, next: next}}, voteSQL)
+	if err != nil {
+		return VoteResult{}, nil, 0, err
+	}
+	o := outs[0]
+	return o.res, o.claim, o.retake, o.err
+}
+
+// writeVotes stores votes and claims their labellers' next items in one
+// transaction of two round trips: BEGIN with every vote (sql: voteSQL, or
+// batchVoteSQL in a batch), then every item's new state, every claim with
+// its check, and a COMMIT that travels with them. The claims come last:
+// their FOR UPDATE holds each claimed row to the commit, and labellers
+// voting on that item wait for it. (Claiming first measured slower; a
+// separate transaction costs a second commit.) Every item's new state
+// also goes before any claim: a claim sees the items this transaction
+// voted on (locked by itself, so not passed over) with their votes'
+// claims already gone, and must see their counts after those votes too,
+// or it takes a slot a vote has just filled.
+//
+// A vote that was not stored (unknown label, repeated id, no claim) wrote
+// nothing, thanks to voteSQL's guards, and gets its error while the others
+// go on; one whose item another transaction holds (batchVoteSQL) wrote
+// nothing either and is marked skipped. A transaction that stored no vote
+// is rolled back. An error returned means nothing was stored.
+func (s *Store) writeVotes(ctx context.Context, jobs []*voteJob, sql string) ([]voteOutcome, error) {
 	c, err := s.pool.Acquire(ctx)
 	if err != nil {
-		return res, nil, 0, err
+		return nil, err
 	}
 	defer releaseAfterTx(c)
-	var row voteRow
+	rows := make([]voteRow, len(jobs))
 	var b pgx.Batch
 	b.Queue("begin")
-	row.queue(&b, voteSQL, v)
+	for i, j := range jobs {
+		rows[i].queue(&b, sql, j.v)
+	}
 	if err := c.SendBatch(ctx, &b).Close(); err != nil {
-		return res, nil, 0, err
+		return nil, err
 	}
-	if res, err = row.result(); err != nil {
-		return res, nil, 0, err
-	}
+	outs := make([]voteOutcome, len(jobs))
+	stored := false
 	var write pgx.Batch
-	if err := finishVote(ctx, c, v, decide, &res, &row, &write); err != nil {
-		return res, nil, 0, err
+	for i, j := range jobs {
+		if rows[i].skipped {
+			outs[i].skipped = true
+			continue
+		}
+		res, err := rows[i].result()
+		if err != nil {
+			outs[i].err = err
+			continue
+		}
+		if err := finishVote(ctx, c, j.v, j.decide, &res, &rows[i], &write); err != nil {
+			return nil, err
+		}
+		outs[i].res, stored = res, true
 	}
-	var r claimRound
-	if next != nil {
-		r.queue(&write, *next, next.Exclude)
+	if !stored {
+		return outs, nil // releaseAfterTx rolls the transaction back
+	}
+	rounds := make([]claimRound, len(jobs))
+	for i, j := range jobs {
+		if j.next != nil && outs[i].err == nil && !outs[i].skipped {
+			rounds[i].queue(&write, *j.next, j.next.Exclude)
+		}
 	}
 	write.Queue("commit")
 	if err := c.SendBatch(ctx, &write).Close(); err != nil {
-		return res, nil, 0, err
+		return nil, err
 	}
 	if c.Conn().PgConn().TxStatus() != 'I' {
-		return res, nil, 0, errors.New("the vote's transaction did not end at its COMMIT")
+		return nil, errors.New("the votes' transaction did not end at its COMMIT")
 	}
-	claim, retake = r.outcome()
-	return res, claim, retake, nil
+	for i := range outs {
+		if outs[i].err == nil && !outs[i].skipped {
+			outs[i].claim, outs[i].retake = rounds[i].outcome()
+		}
+	}
+	return outs, nil
 }
 
 // releaseAfterTx returns a connection to the pool after a transaction run
@@ -202,7 +247,7 @@ var voteSQL = voteSQLLocking("FOR UPDATE")
 
 // batchVoteSQL is voteSQL for a vote in a batch (votebatch.go): when
 // another transaction holds the item, it writes nothing and answers
-// skipped, and the vote is made alone. A batch waiting for one item would
+// skipped, and the vote waits for a later batch. A batch waiting for one item would
 // hold every other item it has locked, and the votes on those would wait
 // behind it.
 var batchVoteSQL = voteSQLLocking("FOR UPDATE SKIP LOCKED")
